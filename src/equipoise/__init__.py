@@ -1,0 +1,38 @@
+"""equipoise: Nash equilibria of continuous-action games, found and verified.
+
+float64 is switched on at import: equilibrium verification and stability
+margins need it.
+"""
+
+import jax as _jax
+
+_jax.config.update("jax_enable_x64", True)
+
+from ._errors import InputError  # noqa: E402
+from ._game import Game  # noqa: E402
+from ._loader import load_game  # noqa: E402
+from ._newton import RootResult, newton_solve  # noqa: E402
+from ._solve import Equilibrium, Solution, solve  # noqa: E402
+from ._status import Nash, Status  # noqa: E402
+from ._verify import Verification, verify  # noqa: E402
+from .families import cournot, linear_bertrand, logit_bertrand  # noqa: E402
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Equilibrium",
+    "Game",
+    "InputError",
+    "Nash",
+    "RootResult",
+    "Solution",
+    "Status",
+    "Verification",
+    "cournot",
+    "linear_bertrand",
+    "load_game",
+    "logit_bertrand",
+    "newton_solve",
+    "solve",
+    "verify",
+]

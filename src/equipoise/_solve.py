@@ -1,0 +1,223 @@
+"""Multistart solve: every equilibrium Newton finds from a sample of starts.
+
+Starts are a scrambled Sobol sample of the game's search region. Newton runs
+from all of them at once (one compiled, ``vmap``ed call); converged points
+are de-duplicated and each distinct one is verified.
+"""
+
+from __future__ import annotations
+
+import functools
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from ._checks import check_payoffs
+from ._newton import newton_solve
+from ._sampling import unit_sample
+from ._status import Nash, Status
+from ._verify import verify
+
+
+@dataclass(frozen=True)
+class Equilibrium:
+    """One distinct equilibrium candidate and the evidence about it.
+
+    Attributes
+    ----------
+    x : ndarray (n,)
+        Stacked actions.
+    actions : dict
+        ``{player: ndarray}``.
+    payoffs : dict
+        ``{player: float}``.
+    residual : float
+        Natural KKT residual (sup norm).
+    nash : Nash
+        Verification label.
+    jacobian : ndarray (n, n)
+        Game Jacobian at ``x``.
+    own_curvature, gains : ndarray (N,)
+        Per player: largest own-Hessian eigenvalue on interior coordinates,
+        and best gain found by the deviation search.
+    interior : ndarray of bool (n,)
+        Coordinates strictly inside their bounds.
+    starts : int
+        How many starting points converged here.
+    """
+
+    x: np.ndarray
+    actions: dict[str, np.ndarray]
+    payoffs: dict[str, float]
+    residual: float
+    nash: Nash
+    jacobian: np.ndarray
+    own_curvature: np.ndarray
+    gains: np.ndarray
+    interior: np.ndarray
+    starts: int
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Result of :func:`solve`.
+
+    Attributes
+    ----------
+    equilibria : list of Equilibrium
+        Distinct first-order points, sorted by stacked actions (coordinate by
+        coordinate; differences within the de-duplication tolerance are
+        ties). Points labelled ``not_nash`` are included and marked.
+    status : Status
+        ``success`` when at least one start converged.
+    params : dict
+        The parameter values used.
+    stats : dict
+        Effort: ``starts``, ``converged``, counts per status, Newton steps,
+        ``seconds``.
+    """
+
+    equilibria: list[Equilibrium]
+    status: Status
+    params: dict[str, np.ndarray]
+    stats: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def success(self) -> bool:
+        return self.status is Status.success
+
+    @property
+    def message(self) -> str:
+        return self.status.message
+
+    @property
+    def nash(self) -> list[Equilibrium]:
+        """The equilibria not labelled ``not_nash``."""
+        return [e for e in self.equilibria if e.nash is not Nash.not_nash]
+
+
+def starting_points(game, theta, count: int, seed: int) -> np.ndarray:
+    """``count`` scrambled-Sobol starts in the game's search region."""
+    lo, hi = (np.asarray(v) for v in game.region(theta))
+    return lo + (hi - lo) * unit_sample(count, game.n, seed)
+
+
+def _same(a: np.ndarray, b: np.ndarray, tol: float) -> bool:
+    return float(np.max(np.abs(a - b))) <= tol * (1.0 + max(np.max(np.abs(a)), np.max(np.abs(b))))
+
+
+def distinct(points: np.ndarray, residuals: np.ndarray, tol: float) -> list[tuple[np.ndarray, int]]:
+    """Greedy de-duplication; returns ``(representative, count)`` pairs.
+
+    Two points are the same when
+    ``max|a - b| <= tol * (1 + max(max|a|, max|b|))``; the representative is
+    the one with the smallest residual.
+    """
+    kept: list[list] = []
+    for k in np.argsort(residuals, kind="stable"):
+        p = points[k]
+        for entry in kept:
+            if _same(p, entry[0], tol):
+                entry[1] += 1
+                break
+        else:
+            kept.append([p, 1])
+
+    def order(a, b):
+        for u, v in zip(a[0], b[0]):
+            if abs(u - v) > tol * (1.0 + max(abs(u), abs(v))):
+                return -1 if u < v else 1
+        return 0
+
+    kept.sort(key=functools.cmp_to_key(order))
+    return [(p, c) for p, c in kept]
+
+
+def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, seed: int = 0,
+          ftol: float = 1e-10, xtol: float = 1e-10, max_steps: int = 100,
+          dedup_tol: float = 1e-6, deviation_starts: int = 16) -> Solution:
+    """Find and verify the equilibria of ``game`` reachable from ``starts`` starts.
+
+    Parameters
+    ----------
+    game : Game
+    params : mapping, optional
+        Parameter overrides (name to number or nested list); shapes must
+        match the defaults.
+    starts : int
+        Size of the Sobol sample of the search region.
+    seed : int
+        Scrambling seed (starts and deviation search).
+    ftol, xtol, max_steps
+        Newton tolerances, see :func:`newton_solve`.
+    dedup_tol : float
+        Scaled tolerance under which two solutions are one, see :func:`distinct`.
+    deviation_starts : int
+        Starts per player of the global deviation check, see :func:`verify`.
+
+    Returns
+    -------
+    Solution
+
+    Examples
+    --------
+    >>> import equipoise
+    >>> sol = equipoise.solve(equipoise.cournot(a=100.0, b=2.0, costs=[10.0, 20.0, 30.0]))
+    >>> [e.nash.value for e in sol.equilibria]
+    ['global']
+    """
+    if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
+        from ._errors import InputError
+
+        raise InputError(f"starts: expected a positive whole number, got {starts!r}")
+    t0 = time.perf_counter()
+    theta = game.theta(params)
+    x0 = starting_points(game, theta, int(starts), int(seed))
+    check_payoffs(game, theta, x0)
+
+    run = game.cached(
+        ("newton_batch", ftol, xtol, max_steps),
+        lambda: jax.jit(jax.vmap(
+            lambda x, th: newton_solve(game, x, th, ftol=ftol, xtol=xtol, max_steps=max_steps),
+            in_axes=(0, None))),
+    )
+    roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
+    ok = roots.status == Status.success.code
+
+    check = game.cached(
+        ("verify", deviation_starts, seed),
+        lambda: jax.jit(lambda x, th: verify(game, x, th, starts=deviation_starts, seed=seed)),
+    )
+    payoff_fn = game.cached("payoff", lambda: jax.jit(game.payoff_vector))
+    equilibria = []
+    for x, count in distinct(roots.x[ok], roots.residual[ok], dedup_tol):
+        v = jax.tree.map(np.asarray, check(jnp.asarray(x), theta))
+        u = np.asarray(payoff_fn(jnp.asarray(x), theta))
+        equilibria.append(Equilibrium(
+            x=x,
+            actions={p: np.asarray(a) for p, a in game.split(x).items()},
+            payoffs={p: float(u[i]) for i, p in enumerate(game.players)},
+            residual=float(v.residual),
+            nash=Nash.from_code(v.label),
+            jacobian=v.jacobian,
+            own_curvature=v.own_curvature,
+            gains=v.gains,
+            interior=v.interior,
+            starts=int(count),
+        ))
+    counts = {s.name: int(np.sum(roots.status == s.code)) for s in Status if np.any(roots.status == s.code)}
+    stats = {
+        "starts": int(starts),
+        "converged": int(ok.sum()),
+        "outcomes": counts,
+        "newton_steps_mean": float(np.mean(roots.steps)),
+        "newton_steps_max": int(np.max(roots.steps)),
+        "seconds": time.perf_counter() - t0,
+    }
+    status = Status.success if equilibria else Status.no_equilibrium
+    return Solution(equilibria, status, {k: np.asarray(v) for k, v in theta.items()}, stats)

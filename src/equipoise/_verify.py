@@ -1,0 +1,178 @@
+r"""Is a first-order point a Nash equilibrium?
+
+Three checks, all pure JAX (``jit`` and ``vmap`` apply):
+
+1. the natural KKT residual;
+2. the second-order condition: each player's own Hessian (diagonal block
+   :math:`J_{ii}` of the game Jacobian) restricted to its coordinates strictly
+   inside the bounds is negative definite;
+3. a global deviation check: each player, the others held fixed, maximises
+   its own payoff over its own actions by projected gradient ascent from a
+   low-discrepancy sample of its action box (bounds where finite, otherwise
+   the game's search box).
+
+Labels (:class:`Nash`): ``not_nash`` when some player's own Hessian has a
+positive eigenvalue on interior coordinates, or a profitable deviation was
+found and the second-order condition does not hold strictly; ``local`` when
+the second-order condition holds strictly but a profitable deviation was
+found (or the deviation search met only non-finite payoffs); ``global``
+otherwise. A deviation is profitable when it gains more than
+``gain_tol * (1 + |u_i(x)|)``.
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+from jax import lax
+
+from ._newton import natural_residual
+from ._sampling import unit_sample
+from ._status import Nash
+
+
+class Verification(NamedTuple):
+    """Evidence behind a Nash label (a pytree: works under ``jit``/``vmap``).
+
+    Attributes
+    ----------
+    label : int array
+        A :class:`Nash` code.
+    residual : array
+        Natural KKT residual (sup norm).
+    own_curvature : array (N,)
+        Largest eigenvalue of each player's own Hessian on its interior
+        coordinates (``-inf`` when the player has none).
+    gains : array (N,)
+        Best payoff gain each player's deviation search found (may be <= 0).
+    deviations : array (N, n)
+        The stacked action profile at which each best deviation was found.
+    interior : bool array (n,)
+        Coordinates strictly inside their bounds.
+    jacobian : array (n, n)
+        The game Jacobian at the point.
+    """
+
+    label: jax.Array
+    residual: jax.Array
+    own_curvature: jax.Array
+    gains: jax.Array
+    deviations: jax.Array
+    interior: jax.Array
+    jacobian: jax.Array
+
+
+def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0,
+           gain_tol=1e-8, curvature_tol=1e-8, bound_tol=1e-9):
+    """Verify that stacked actions ``x`` form a Nash equilibrium of ``game``.
+
+    Parameters
+    ----------
+    game : Game
+    x : array (n,)
+    theta : dict, optional
+        Parameter arrays; defaults if omitted.
+    starts : int
+        Starting points per player for the deviation search (the point
+        itself is always one more).
+    ascent_steps : int
+        Projected gradient-ascent steps from each start.
+    seed : int
+        Seed of the scrambled Sobol sample.
+    gain_tol : float
+        Relative gain that counts as a profitable deviation.
+    curvature_tol : float
+        Eigenvalues within ``curvature_tol * (1 + max|J_ii|)`` of zero count
+        as zero.
+    bound_tol : float
+        A coordinate within ``bound_tol * (1 + |bound|)`` of a bound is at it.
+
+    Returns
+    -------
+    Verification
+    """
+    if theta is None:
+        theta = game.theta()
+    x = jnp.asarray(x, dtype=float)
+    n, N = game.n, len(game.players)
+    lower, upper = game.lower, game.upper
+    owner = jnp.asarray(game.owner)
+
+    F = game.pseudo_gradient(x, theta)
+    J = game.jacobian(x, theta)
+    residual = jnp.max(jnp.abs(natural_residual(x, F, lower, upper)))
+
+    lo_gap = x - jnp.where(np.isfinite(lower), lower, -jnp.inf)
+    hi_gap = jnp.where(np.isfinite(upper), upper, jnp.inf) - x
+    interior = (lo_gap > bound_tol * (1 + jnp.abs(jnp.where(np.isfinite(lower), lower, 0.0)))) & (
+        hi_gap > bound_tol * (1 + jnp.abs(jnp.where(np.isfinite(upper), upper, 0.0))))
+
+    H = 0.5 * (J + J.T)
+    same_owner = owner[:, None] == owner[None, :]
+
+    def curvature(i):
+        keep = (owner == i) & interior
+        mask = keep[:, None] & keep[None, :] & same_owner
+        block = jnp.where(mask, H, 0.0)
+        size = jnp.max(jnp.abs(block))
+        shift = 2.0 * size + 1.0
+        eig = jnp.linalg.eigvalsh(block - jnp.diag(jnp.where(keep, 0.0, shift)))
+        top = eig[-1]
+        tol = curvature_tol * (1.0 + size)
+        return jnp.where(jnp.any(keep), top, -jnp.inf), tol
+
+    own_curv, curv_tol = jax.vmap(curvature)(jnp.arange(N))
+
+    lo, hi = game.region(theta)
+    sample = lo + (hi - lo) * jnp.asarray(unit_sample(starts, n, seed))
+    starts_all = jnp.concatenate([x[None, :], sample], axis=0)  # (S, n)
+    u_star = game.payoff_vector(x, theta)
+
+    def payoff_i(y, i):
+        return game.payoff_vector(y, theta)[i]
+
+    grad_i = jax.grad(payoff_i)
+
+    def ascend(i, start):
+        mine = owner == i
+        y0 = jnp.where(mine, start, x)
+        width = jnp.where(mine, hi - lo, 0.0)
+
+        def step(_, c):
+            y, u, eta = c
+            g = jnp.where(mine, grad_i(y, i), 0.0)
+            g = jnp.where(jnp.isfinite(g), g, 0.0)
+            y_try = jnp.where(mine, jnp.clip(y + eta * g, lo, hi), y)
+            u_try = payoff_i(y_try, i)
+            ok = jnp.isfinite(u_try) & (u_try >= u + 1e-4 * (g @ (y_try - y)))
+            ok = ok & jnp.any(y_try != y)
+            return (jnp.where(ok, y_try, y), jnp.where(ok, u_try, u), jnp.where(ok, 2.0 * eta, 0.25 * eta))
+
+        g0 = jnp.where(mine, grad_i(y0, i), 0.0)
+        gnorm = jnp.max(jnp.abs(jnp.where(jnp.isfinite(g0), g0, 0.0)))
+        eta0 = 0.1 * jnp.max(width) / (gnorm + 1e-12)
+        u0 = payoff_i(y0, i)
+        u0 = jnp.where(jnp.isfinite(u0), u0, -jnp.inf)
+        y, u, _ = lax.fori_loop(0, ascent_steps, step, (y0, u0, eta0))
+        return y, u
+
+    def search(i):
+        ys, us = jax.vmap(lambda s: ascend(i, s))(starts_all)
+        us = jnp.where(jnp.isfinite(us), us, -jnp.inf)
+        best = jnp.argmax(us)
+        return ys[best], us[best] - u_star[i], jnp.any(jnp.isfinite(us))
+
+    devs, gains, checked = jax.vmap(search)(jnp.arange(N))
+    thresholds = gain_tol * (1.0 + jnp.abs(u_star))
+    found = jnp.any(gains > thresholds)
+    soc_bad = jnp.any(own_curv > curv_tol)
+    soc_strict = jnp.all(own_curv < -curv_tol)
+    label = jnp.where(
+        soc_bad | (found & ~soc_strict),
+        Nash.not_nash.code,
+        jnp.where(found | ~jnp.all(checked), Nash.local.code, Nash.global_.code),
+    )
+    return Verification(label, residual, own_curv, gains, devs, interior, J)

@@ -1,0 +1,7 @@
+"""Standard game families, each a function returning a :class:`~equipoise.Game`."""
+
+from .cournot import cournot
+from .linear_bertrand import linear_bertrand
+from .logit import logit_bertrand
+
+__all__ = ["cournot", "linear_bertrand", "logit_bertrand"]
