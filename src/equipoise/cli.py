@@ -1,0 +1,116 @@
+"""The ``equipoise`` command line: parses, calls the public functions, prints.
+
+Every user mistake ends in one line on standard error and exit status 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+
+from . import _report
+from ._errors import InputError
+
+EXIT_INPUT = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, no usage block
+        self.exit(EXIT_INPUT, f"{self.prog}: error: {message}\n")
+
+
+def _parse_sets(items: list[str]) -> dict:
+    out = {}
+    for item in items:
+        name, sep, text = item.partition("=")
+        name = name.strip()
+        if not sep or not name:
+            raise InputError(f"--set {item!r}: expected NAME=VALUE, e.g. --set c=[1.0,2.0]")
+        try:
+            value = json.loads(text)
+        except json.JSONDecodeError:
+            raise InputError(f"--set {name}: value {text!r} is not a number or a JSON list") from None
+        out[name] = value
+    return out
+
+
+def _use_compile_cache() -> None:
+    """Keep compiled solvers between runs (set EQUIPOISE_CACHE=off to disable)."""
+    where = os.environ.get("EQUIPOISE_CACHE", os.path.join(os.path.expanduser("~"), ".cache", "equipoise", "jax"))
+    if where.lower() in ("", "0", "off", "none"):
+        return
+    import jax
+
+    jax.config.update("jax_compilation_cache_dir", where)
+    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.2)
+
+
+def _run_solve(game, model: str, args) -> int:
+    from ._solve import solve
+
+    params = _parse_sets(args.set or [])
+    solution = solve(game, params, starts=args.starts, seed=args.seed)
+    if args.json:
+        json.dump(_report.solution_dict(solution, game, model), sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(_report.solution_table(solution, game, model))
+    return 0
+
+
+def _cmd_solve(args) -> int:
+    from ._loader import load_game
+
+    return _run_solve(load_game(args.model), args.model, args)
+
+
+def _cmd_demo(args) -> int:
+    from ._demo import demo_game
+
+    game = demo_game()
+    return _run_solve(game, game.name, args)
+
+
+def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
+    if sets:
+        p.add_argument("--set", action="append", metavar="NAME=VALUE",
+                       help="override a parameter; VALUE is a number or a JSON list (repeatable)")
+    p.add_argument("--starts", type=int, default=64, help="number of starting points (default 64)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the starting-point sample (default 0)")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="equipoise", description="Find and verify Nash equilibria of continuous-action games.")
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    p = sub.add_parser("solve", help="find, verify and report the equilibria of a model file")
+    p.add_argument("model", help="a Python file that defines `game`")
+    _solve_options(p)
+    p.set_defaults(func=_cmd_solve)
+    p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
+    _solve_options(p)
+    p.set_defaults(func=_cmd_demo)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    if getattr(args, "starts", 1) < 1:
+        print(f"equipoise {args.command}: error: --starts: expected a positive whole number, got {args.starts}",
+              file=sys.stderr)
+        return EXIT_INPUT
+    _use_compile_cache()
+    try:
+        return args.func(args)
+    except InputError as exc:
+        print(f"equipoise {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except BrokenPipeError:  # output piped into a reader that stopped early
+        sys.stderr.close()
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
