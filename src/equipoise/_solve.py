@@ -189,14 +189,12 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
     ok = roots.status == Status.success.code
 
-    check = game.cached(
-        ("verify", deviation_starts, seed),
-        lambda: jax.jit(lambda x, th: verify(game, x, th, starts=deviation_starts, seed=seed)),
-    )
+    check = game.cached("verify", lambda: jax.jit(lambda x, th, u: verify(game, x, th, unit_starts=u)))
+    unit = jnp.asarray(unit_sample(int(deviation_starts), game.n, int(seed) + 1))
     payoff_fn = game.cached("payoff", lambda: jax.jit(game.payoff_vector))
     equilibria = []
     for x, count in distinct(roots.x[ok], roots.residual[ok], dedup_tol):
-        v = jax.tree.map(np.asarray, check(jnp.asarray(x), theta))
+        v = jax.tree.map(np.asarray, check(jnp.asarray(x), theta, unit))
         u = np.asarray(payoff_fn(jnp.asarray(x), theta))
         equilibria.append(Equilibrium(
             x=x,

@@ -65,7 +65,7 @@ class Verification(NamedTuple):
     jacobian: jax.Array
 
 
-def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0,
+def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_starts=None,
            gain_tol=1e-8, curvature_tol=1e-8, bound_tol=1e-9):
     """Verify that stacked actions ``x`` form a Nash equilibrium of ``game``.
 
@@ -82,6 +82,10 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0,
         Projected gradient-ascent steps from each start.
     seed : int
         Seed of the scrambled Sobol sample.
+    unit_starts : array (S, n), optional
+        Deviation starts in the unit cube, scaled to the action box; replaces
+        ``starts`` and ``seed`` (pass it as an argument to avoid recompiling
+        for each seed).
     gain_tol : float
         Relative gain that counts as a profitable deviation.
     curvature_tol : float
@@ -127,7 +131,9 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0,
     own_curv, curv_tol = jax.vmap(curvature)(jnp.arange(N))
 
     lo, hi = game.region(theta)
-    sample = lo + (hi - lo) * jnp.asarray(unit_sample(starts, n, seed))
+    if unit_starts is None:
+        unit_starts = unit_sample(starts, n, seed)
+    sample = lo + (hi - lo) * jnp.asarray(unit_starts)
     starts_all = jnp.concatenate([x[None, :], sample], axis=0)  # (S, n)
     u_star = game.payoff_vector(x, theta)
 

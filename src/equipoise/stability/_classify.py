@@ -1,0 +1,255 @@
+r"""Stability labels of one equilibrium's game Jacobian, each backed by a certificate.
+
+Speed classes (``K`` positive diagonal, ``J`` the game Jacobian):
+
+* equal speeds, ``K = I``: ``stable`` / ``borderline`` / ``unstable``;
+* per-player speeds, ``K = blockdiag(k_i I_{m_i})`` and per-coordinate speeds
+  (D-stability): ``robust`` (``KJ`` Hurwitz for every such ``K``, proved by an
+  exact criterion or a re-verified Lyapunov matrix), ``fragile`` (re-verified
+  speeds with ``max Re eig(KJ) > FRAGILE_TOL * |KJ|_F``) or ``undecided``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import jax
+import numpy as np
+
+from . import _exact, _minors, _search, _spectral
+from ._ratios import stable_ratio_intervals
+
+#: A destabilising certificate must push the scaled abscissa above this.
+FRAGILE_TOL = 1e-6
+#: A Lyapunov certificate must push the scaled top eigenvalue below minus this.
+LYAPUNOV_TOL = 1e-9
+#: Relative tolerance for the sign of a scaled principal minor.
+MINOR_TOL = 1e-10
+
+ROBUST, FRAGILE, UNDECIDED = "robust", "fragile", "undecided"
+
+
+@dataclass(frozen=True)
+class SpeedVerdict:
+    """Verdict for one class of speeds, with its certificate and search effort."""
+
+    verdict: str
+    method: str
+    certificate: dict[str, Any] | None
+    effort: dict[str, Any] = field(default_factory=dict)
+    stable_ratios: list | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        out = {"verdict": self.verdict, "method": self.method, "certificate": self.certificate}
+        if self.effort:
+            out["effort"] = self.effort
+        if self.stable_ratios is not None:
+            out["stable_ratios"] = self.stable_ratios
+        return out
+
+
+@dataclass(frozen=True)
+class StabilityReport:
+    """All stability labels of one Jacobian (see module docstring)."""
+
+    equal_speeds: dict[str, Any]
+    player_speeds: SpeedVerdict
+    coordinate_speeds: SpeedVerdict
+    hicksian: bool | None
+    learning_rate_limit: float | None
+    best_response: dict[str, Any]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "equal_speeds": dict(self.equal_speeds),
+            "player_speeds": self.player_speeds.to_dict(),
+            "coordinate_speeds": self.coordinate_speeds.to_dict(),
+            "hicksian": {"verdict": self.hicksian},
+            "learning_rate_limit": self.learning_rate_limit,
+            "best_response": dict(self.best_response),
+        }
+
+
+# ---------------------------------------------------------------- re-verification
+def speeds_abscissa(J: np.ndarray, speeds: np.ndarray) -> float:
+    """Scaled abscissa ``max Re eig(KJ) / |KJ|_F`` in float64 numpy."""
+    M = np.asarray(speeds, dtype=float)[:, None] * J
+    return float(np.max(np.linalg.eigvals(M).real) / max(np.linalg.norm(M), 1e-300))
+
+
+def _fragile(J, speeds, coord_speeds, method, effort=None) -> SpeedVerdict | None:
+    speeds = np.asarray(speeds, dtype=float)
+    if not (np.all(np.isfinite(speeds)) and np.all(speeds > 0)):
+        return None
+    speeds = speeds / speeds.max()
+    value = speeds_abscissa(J, coord_speeds(speeds))
+    if value <= FRAGILE_TOL:
+        return None
+    return SpeedVerdict(FRAGILE, method, {"speeds": speeds.tolist(), "abscissa": value}, effort or {})
+
+
+def lyapunov_top(J: np.ndarray, P: np.ndarray, blocks) -> float | None:
+    """Scaled top eigenvalue of ``PJ + J^T P`` if ``P`` is a valid weight matrix, else None."""
+    P = 0.5 * (P + P.T)
+    if np.any(P[~_spectral.block_mask(blocks)] != 0) or np.linalg.eigvalsh(P)[0] <= 0:
+        return None
+    Q = P @ J + J.T @ P
+    return float(np.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (np.linalg.norm(P) * np.linalg.norm(J)))
+
+
+def _robust_lyapunov(J, blocks, diagonal: bool, effort) -> SpeedVerdict | None:
+    P, _ = _search.lyapunov_weights(jax.numpy.asarray(J), tuple(blocks))
+    P = np.asarray(P)
+    P = 0.5 * (P + P.T)
+    P[~_spectral.block_mask(blocks)] = 0.0
+    top = lyapunov_top(J, P, blocks)
+    if top is None or top >= -LYAPUNOV_TOL:
+        effort["lyapunov_best"] = top
+        return None
+    cert = {"diagonal": np.diag(P).tolist()} if diagonal else {"matrix": P.tolist()}
+    cert["max_eigenvalue"] = top
+    name = "diagonal Lyapunov matrix" if diagonal else "block-diagonal Lyapunov matrix"
+    return SpeedVerdict(ROBUST, name, cert, effort)
+
+
+# ---------------------------------------------------------------- speed classes
+def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
+    n = J.shape[0]
+    ident = lambda k: k  # noqa: E731
+    if equal_abscissa > FRAGILE_TOL:
+        v = _fragile(J, np.ones(n), ident, "unstable at equal speeds")
+        if v:
+            return v
+    effort: dict[str, Any] = {}
+    if n <= _minors.MAX_ENUMERATION:
+        sets = _minors.subsets(n)
+        minors = np.asarray(_minors.normalised_minors(jax.numpy.asarray(J), sets))
+        k = int(np.argmin(minors))
+        effort["principal_minors"] = int(len(sets))
+        if minors[k] < -MINOR_TOL:
+            for eps in (1e-1, 1e-2, 1e-3, 1e-4, 1e-6):
+                v = _fragile(J, np.where(sets[k], 1.0, eps), ident, "negative principal minor of -J", effort)
+                if v:
+                    return v
+    if n == 1:
+        if J[0, 0] < 0:
+            return SpeedVerdict(ROBUST, "scalar: negative own slope", {"criterion": "J < 0"})
+    elif n in (2, 3):
+        holds, margin, speeds = (_exact.dstable_2x2 if n == 2 else _exact.dstable_3x3)(jax.numpy.asarray(J))
+        name = "2x2 entrywise criterion" if n == 2 else "3x3 Routh-Hurwitz / Cauchy-Schwarz criterion"
+        if bool(holds):
+            return SpeedVerdict(ROBUST, "exact " + name, {"criterion": name, "margin": float(margin)})
+        if float(margin) < -MINOR_TOL:
+            v = _fragile(J, np.asarray(speeds), ident, "exact " + name, effort)
+            if v:
+                return v
+    v = _robust_lyapunov(J, (1,) * n, True, effort)
+    if v:
+        return v
+    return _search_fragile(J, (1,) * n, ident, effort)
+
+
+def _search_fragile(J, blocks, coord_speeds, effort) -> SpeedVerdict:
+    starts = 16
+    speeds, best = _search.destabilising_speeds(jax.numpy.asarray(J), tuple(blocks), starts=starts)
+    effort.update({"search_starts": starts, "best_scaled_abscissa": float(best)})
+    v = _fragile(J, np.asarray(speeds), coord_speeds, "search over log-speeds", effort)
+    return v or SpeedVerdict(UNDECIDED, "no certificate found", None, effort)
+
+
+def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: SpeedVerdict) -> SpeedVerdict:
+    blocks = tuple(int(b) for b in blocks)
+    expand = lambda k: np.repeat(k, blocks)  # noqa: E731
+    if all(b == 1 for b in blocks) and len(blocks) != 2:
+        return coordinate
+    if equal_abscissa > FRAGILE_TOL:
+        v = _fragile(J, np.ones(len(blocks)), expand, "unstable at equal speeds")
+        if v:
+            ratios = stable_ratio_intervals(J, blocks[0]) if len(blocks) == 2 else None
+            return SpeedVerdict(v.verdict, v.method, v.certificate, stable_ratios=ratios)
+    if len(blocks) == 1:
+        if equal_abscissa < -FRAGILE_TOL:
+            return SpeedVerdict(ROBUST, "one player: equal speeds", {"criterion": "J Hurwitz"})
+        return SpeedVerdict(UNDECIDED, "one player: borderline at equal speeds", None)
+    if len(blocks) == 2:
+        ratios = stable_ratio_intervals(J, blocks[0])
+        if ratios == [[None, None]]:
+            return SpeedVerdict(ROBUST, "exact speed-ratio analysis (Kronecker-sum roots)",
+                                {"criterion": "no critical speed ratio"}, stable_ratios=ratios)
+        for probe in _unstable_probes(ratios):
+            v = _fragile(J, np.array([1.0, probe]), expand, "exact speed-ratio analysis (Kronecker-sum roots)")
+            if v:
+                return SpeedVerdict(v.verdict, v.method, v.certificate, stable_ratios=ratios)
+        return SpeedVerdict(UNDECIDED, "speed-ratio analysis found only marginal ratios", None,
+                            stable_ratios=ratios)
+    if coordinate.verdict == ROBUST:
+        return SpeedVerdict(ROBUST, "implied by per-coordinate robustness (" + coordinate.method + ")",
+                            coordinate.certificate)
+    effort: dict[str, Any] = {}
+    v = _robust_lyapunov(J, blocks, False, effort)
+    if v:
+        return v
+    return _search_fragile(J, blocks, expand, effort)
+
+
+def _unstable_probes(ratios) -> list[float]:
+    edges = [0.0]
+    for lo, hi in ratios:
+        edges += [0.0 if lo is None else lo, np.inf if hi is None else hi]
+    edges.append(np.inf)
+    probes = []
+    for lo, hi in zip(edges[0::2], edges[1::2]):
+        if hi <= lo:
+            continue
+        probes.append(hi / 10 if lo == 0 else lo * 10 if hi == np.inf else float(np.sqrt(lo * hi)))
+    return probes
+
+
+def classify(J, blocks=None) -> StabilityReport:
+    """Label the stability of an equilibrium from its game Jacobian.
+
+    Parameters
+    ----------
+    J : array (n, n)
+        Game Jacobian on the free coordinates.
+    blocks : sequence of int, optional
+        Players' action counts ``m_1, ..., m_N`` (sum ``n``); default one
+        coordinate per player.
+
+    Returns
+    -------
+    StabilityReport
+
+    Examples
+    --------
+    >>> rep = classify([[1.0, -2.0], [3.0, -4.0]])
+    >>> rep.equal_speeds["verdict"], rep.coordinate_speeds.verdict
+    ('stable', 'fragile')
+    """
+    J = np.asarray(J, dtype=float)
+    n = J.shape[0]
+    blocks = (1,) * n if blocks is None else tuple(int(b) for b in blocks)
+    code, a = _spectral.equal_speeds(jax.numpy.asarray(J))
+    scaled = float(a) / max(float(np.linalg.norm(J)), 1e-300)
+    equal = {"verdict": _spectral.VERDICTS[int(code)], "abscissa": float(a)}
+    coordinate = _coordinate_verdict(J, scaled)
+    player = _player_verdict(J, blocks, scaled, coordinate)
+    if player.verdict == FRAGILE and coordinate.verdict != FRAGILE:
+        speeds = np.repeat(player.certificate["speeds"], blocks)
+        coordinate = _fragile(J, speeds, lambda k: k, "implied by per-player fragility") or coordinate
+    hicksian = None
+    if n <= _minors.MAX_ENUMERATION:
+        minors = np.asarray(_minors.normalised_minors(jax.numpy.asarray(J), _minors.subsets(n)))
+        hicksian = bool(np.all(minors > MINOR_TOL))
+    lr = float(_spectral.learning_rate_limit(jax.numpy.asarray(J)))
+    try:
+        rho = float(_spectral.best_response_radius(jax.numpy.asarray(J), blocks))
+    except Exception:  # singular own Hessian: best responses undefined
+        rho = float("nan")
+    if np.isfinite(rho):
+        br = "stable" if rho < 1 - 1e-9 else ("unstable" if rho > 1 + 1e-9 else "neutral")
+    else:
+        br, rho = None, None
+    return StabilityReport(equal, player, coordinate, hicksian, lr if np.isfinite(lr) else None,
+                           {"verdict": br, "spectral_radius": rho})
