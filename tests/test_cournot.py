@@ -105,7 +105,7 @@ def test_high_cost_firm_produces_zero(game, c3):
     assert eq.interior[:2].all()
     np.testing.assert_allclose(eq.x[:2], q_duo, rtol=1e-10, atol=1e-10)
     assert a - b * eq.x.sum() == pytest.approx(p_duo, rel=1e-10)
-    assert eq.payoffs["firm3"] == pytest.approx(0.0, abs=1e-10)
+    assert eq.payoffs["firm3"] == pytest.approx(0.0, abs=1e-10)  # derived: zero output, zero profit
 
 
 @pytest.mark.parametrize(

@@ -18,6 +18,13 @@ def shares(p, delta, alpha):
 
 
 def unique_nash(sol):
+    # Logit Bertrand has a unique equilibrium: for single-product firms by
+    # log-concave demand (Caplin & Nalebuff 1991, "Aggregation and imperfect
+    # competition: on the existence of equilibrium", Econometrica 59(1); from
+    # memory), for multi-product firms with a common alpha (Konovalov & Sandor
+    # 2010, "On price equilibrium with multi-product firms", Economic Theory 44;
+    # from memory). For the monopoly, derived from the FOC: alpha m (1 - s) = 1
+    # has a single root because m (1 - s) increases in the price.
     assert sol.status is Status.success
     assert len(sol.equilibria) == 1
     eq = sol.equilibria[0]

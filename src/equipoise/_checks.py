@@ -6,6 +6,7 @@ file (when known), the player or start, and what was expected.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import traceback
 from collections.abc import Mapping
@@ -38,6 +39,66 @@ def user_frame(exc: BaseException, source: str | None) -> str:
     return f"{os.path.basename(chosen.filename)}:{chosen.lineno}"
 
 
+_TRACING_ERRORS = tuple(
+    getattr(jax.errors, name)
+    for name in ("ConcretizationTypeError", "TracerArrayConversionError", "TracerBoolConversionError",
+                 "TracerIntegerConversionError", "NonConcreteBooleanIndexError")
+    if hasattr(jax.errors, name)
+)
+
+
+def _in_user_file(exc: BaseException, source: str | None) -> bool:
+    if not source:
+        return False
+    target = os.path.abspath(source)
+    return any(os.path.abspath(fr.filename) == target for fr in traceback.extract_tb(exc.__traceback__))
+
+
+@contextlib.contextmanager
+def user_code(game, what: str):
+    """Turn a failure inside the user's model code into one :class:`InputError` line."""
+    try:
+        yield
+    except InputError:
+        raise
+    except Exception as exc:
+        if not (isinstance(exc, _TRACING_ERRORS) or _in_user_file(exc, game.source)):
+            raise
+        loc = user_frame(exc, game.source)
+        loc = f" (at {loc})" if loc else ""
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        hint = ""
+        if isinstance(exc, _TRACING_ERRORS):
+            hint = "; write model code with jax.numpy, and jnp.where instead of Python if on actions"
+        raise InputError(f"{_where(game)}{what} failed: {type(exc).__name__}: {first}{loc}{hint}") from None
+
+
+def _check_structure(game, out, what: str, sizes) -> None:
+    where = _where(game)
+    if not isinstance(out, Mapping):
+        raise InputError(f"{where}{what} returned {type(out).__name__}; expected a dict {{player: ...}}")
+    keys = set(out)
+    expected = set(game.players)
+    if keys != expected:
+        missing = ", ".join(sorted(map(str, expected - keys))) or "none"
+        extra = ", ".join(sorted(map(str, keys - expected))) or "none"
+        raise InputError(
+            f"{where}{what} returned keys {sorted(map(str, keys))}; expected exactly the players "
+            f"{list(game.players)} (missing: {missing}; unexpected: {extra})"
+        )
+    for player, shape in zip(game.players, sizes):
+        value = out[player]
+        want = "a scalar payoff" if shape == () else f"an array of {shape[0]} numbers"
+        try:
+            numeric = np.issubdtype(np.asarray(value).dtype, np.number)
+        except Exception:
+            numeric = False
+        if not numeric:
+            raise InputError(f"{where}{what}[{player!r}] is a {type(value).__name__} ({value!r:.40}); expected {want}")
+        if np.shape(value) != shape:
+            raise InputError(f"{where}{what}[{player!r}] has shape {np.shape(value)}; expected {want}")
+
+
 def check_payoffs(game, theta, starts: np.ndarray) -> None:
     """Evaluate the payoffs at the starts; raise :class:`InputError` if unusable."""
     where = _where(game)
@@ -50,28 +111,18 @@ def check_payoffs(game, theta, starts: np.ndarray) -> None:
         loc = user_frame(exc, game.source)
         loc = f" (at {loc})" if loc else ""
         raise InputError(f"{where}payoffs raised {type(exc).__name__}: {exc}{loc}") from None
-    if not isinstance(out, Mapping):
-        raise InputError(f"{where}payoffs returned {type(out).__name__}; expected a dict {{player: payoff}}")
-    keys = set(out)
-    expected = set(game.players)
-    if keys != expected:
-        missing = ", ".join(sorted(map(str, expected - keys))) or "none"
-        extra = ", ".join(sorted(map(str, keys - expected))) or "none"
-        raise InputError(
-            f"{where}payoffs returned keys {sorted(map(str, keys))}; expected exactly the players "
-            f"{list(game.players)} (missing: {missing}; unexpected: {extra})"
-        )
-    for player in game.players:
-        try:
-            shape = np.shape(out[player])
-        except Exception:
-            shape = None
-        if shape != ():
-            raise InputError(
-                f"{where}payoffs[{player!r}] has shape {shape}; expected a scalar payoff"
-            )
-    values = np.asarray(game.cached("payoff_batch", lambda: jax.jit(jax.vmap(game.payoff_vector, (0, None))))(
-        starts, theta))
+    _check_structure(game, out, "payoffs", [()] * len(game.players))
+    if game.foc is not None:
+        with user_code(game, "foc"):
+            foc_out = game.foc(first, theta)
+        _check_structure(game, foc_out, "foc", [(m,) for m in game.sizes])
+    batch = game.cached("payoff_batch", lambda: jax.jit(jax.vmap(game.payoff_vector, (0, None))))
+    with user_code(game, "payoffs"):
+        values = np.asarray(batch(starts, theta))
+        # Differentiability shows only when the gradient is traced.
+        jax.eval_shape(game.jacobian, jax.numpy.asarray(starts[0]), theta)
+        if game.foc is not None:
+            jax.eval_shape(game.solver_field, jax.numpy.asarray(starts[0]), theta)
     bad = ~np.isfinite(values)
     if bad.any():
         s, i = np.argwhere(bad)[0]

@@ -41,6 +41,10 @@ def load_game(path: str | os.PathLike) -> Game:
         sys.modules.pop(module_name, None)
         loc = user_frame(exc, path)
         raise InputError(f"{loc or path}: {exc}") from None
+    except SystemExit as exc:
+        sys.modules.pop(module_name, None)
+        raise InputError(f"{path}: model file called exit ({exc.code!r}) while being imported; "
+                         "expected it to define `game`") from None
     except Exception as exc:  # the model's own code may raise anything
         sys.modules.pop(module_name, None)
         loc = user_frame(exc, path)

@@ -17,7 +17,8 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from ._checks import check_payoffs
+from ._checks import check_payoffs, user_code
+from ._errors import InputError
 from ._newton import newton_solve
 from ._sampling import unit_sample
 from ._status import Nash, Status
@@ -103,7 +104,16 @@ class Solution:
 
 def starting_points(game, theta, count: int, seed: int) -> np.ndarray:
     """``count`` scrambled-Sobol starts in the game's search region."""
-    lo, hi = (np.asarray(v) for v in game.region(theta))
+    with user_code(game, "search_box"):
+        lo, hi = (np.asarray(v) for v in game.region(theta))
+    bad = np.nonzero(~(np.isfinite(lo) & np.isfinite(hi) & (lo <= hi)))[0]
+    if bad.size:
+        k = int(bad[0])
+        where = f"{game.source}: " if game.source else ""
+        raise InputError(
+            f"{where}search region for {game.coordinate_name(k)} is [{lo[k]:g}, {hi[k]:g}] at these "
+            f"parameters; expected a finite interval (check the parameter values or the search box)"
+        )
     return lo + (hi - lo) * unit_sample(count, game.n, seed)
 
 
@@ -172,9 +182,9 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     ['global']
     """
     if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
-        from ._errors import InputError
-
         raise InputError(f"starts: expected a positive whole number, got {starts!r}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed: expected a non-negative whole number, got {seed!r}")
     t0 = time.perf_counter()
     theta = game.theta(params)
     x0 = starting_points(game, theta, int(starts), int(seed))
@@ -186,7 +196,8 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
             lambda x, th: newton_solve(game, x, th, ftol=ftol, xtol=xtol, max_steps=max_steps),
             in_axes=(0, None))),
     )
-    roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
+    with user_code(game, "payoffs"):
+        roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
     ok = roots.status == Status.success.code
 
     check = game.cached("verify", lambda: jax.jit(lambda x, th, u: verify(game, x, th, unit_starts=u)))

@@ -32,8 +32,18 @@ def _parse_sets(items: list[str]) -> dict:
             value = json.loads(text)
         except json.JSONDecodeError:
             raise InputError(f"--set {name}: value {text!r} is not a number or a JSON list") from None
+        if not _numeric(value):
+            raise InputError(f"--set {name}: value {text!r} is not a number or a (nested) list of numbers")
         out[name] = value
     return out
+
+
+def _numeric(value) -> bool:
+    if isinstance(value, bool) or value is None or isinstance(value, str):
+        return False
+    if isinstance(value, list):
+        return all(_numeric(v) for v in value)
+    return isinstance(value, (int, float))
 
 
 def _use_compile_cache() -> None:
@@ -99,6 +109,10 @@ def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     if getattr(args, "starts", 1) < 1:
         print(f"equipoise {args.command}: error: --starts: expected a positive whole number, got {args.starts}",
+              file=sys.stderr)
+        return EXIT_INPUT
+    if getattr(args, "seed", 0) < 0:
+        print(f"equipoise {args.command}: error: --seed: expected a non-negative whole number, got {args.seed}",
               file=sys.stderr)
         return EXIT_INPUT
     _use_compile_cache()
