@@ -1,6 +1,7 @@
 """The public surface of equipoise: exactly these names, nothing private."""
 
 import importlib.metadata
+import pkgutil
 import types
 
 import jax
@@ -27,8 +28,8 @@ PUBLIC = {
     "verify",
 }
 
-# Public submodules that may appear as attributes once imported.
-SUBMODULES = {"families", "cli"}
+# Public submodules (no leading underscore) may appear as attributes once imported.
+SUBMODULES = {m.name for m in pkgutil.iter_modules(equipoise.__path__) if not m.name.startswith("_")}
 
 
 def test_all_is_the_agreed_surface():
@@ -43,6 +44,10 @@ def test_every_public_name_imports():
     assert set(namespace) == PUBLIC
     for name in PUBLIC:
         assert getattr(equipoise, name) is namespace[name]
+
+
+def test_public_submodules_exist():
+    assert {"families", "cli"} <= SUBMODULES
 
 
 def test_nothing_private_leaks():

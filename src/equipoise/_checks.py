@@ -119,10 +119,8 @@ def check_payoffs(game, theta, starts: np.ndarray) -> None:
     batch = game.cached("payoff_batch", lambda: jax.jit(jax.vmap(game.payoff_vector, (0, None))))
     with user_code(game, "payoffs"):
         values = np.asarray(batch(starts, theta))
-        # Differentiability shows only when the gradient is traced.
-        jax.eval_shape(game.jacobian, jax.numpy.asarray(starts[0]), theta)
-        if game.foc is not None:
-            jax.eval_shape(game.solver_field, jax.numpy.asarray(starts[0]), theta)
+        # Differentiability shows only when the gradient is traced (once per game).
+        game.cached("traced_ok", lambda: _trace_derivatives(game, starts[0], theta))
     bad = ~np.isfinite(values)
     if bad.any():
         s, i = np.argwhere(bad)[0]
@@ -131,3 +129,10 @@ def check_payoffs(game, theta, starts: np.ndarray) -> None:
             f"{where}payoffs[{game.players[i]!r}] is not finite ({values[s, i]}) at the starting point "
             f"[{point}]; expected finite payoffs on the search box (set bounds or search_box)"
         )
+
+
+def _trace_derivatives(game, x, theta) -> bool:
+    jax.eval_shape(game.jacobian, jax.numpy.asarray(x), theta)
+    if game.foc is not None:
+        jax.eval_shape(game.solver_field, jax.numpy.asarray(x), theta)
+    return True
