@@ -44,6 +44,7 @@ def solution_dict(solution, game, model: str) -> dict[str, Any]:
                 "jacobian": np.asarray(e.jacobian).tolist(),
                 "deviation_gains": {p: float(g) for p, g in zip(game.players, e.gains)},
                 "starts": e.starts,
+                "stability": e.stability.to_dict() if e.stability is not None else None,
             }
             for e in solution.equilibria
         ],
@@ -85,6 +86,8 @@ def solution_table(solution, game, model: str) -> str:
         at_bound = [game.coordinate_name(j) for j in range(game.n) if not e.interior[j]]
         lines.append(f"  KKT residual {e.residual:.1e}; reached from {e.starts} start(s)"
                      + (f"; at a bound: {', '.join(at_bound)}" if at_bound else ""))
+        if e.stability is not None:
+            lines.extend("  " + text for text in stability_lines(e.stability))
         if e.nash is not Nash.global_:
             gainers = [f"{p} (+{_num(float(g))})" for p, g in zip(game.players, e.gains) if g > 0]
             if gainers:
@@ -92,3 +95,46 @@ def solution_table(solution, game, model: str) -> str:
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+def _speeds_text(v) -> str:
+    return "[" + ", ".join(_num(k) for k in v) + "]"
+
+
+def _interval_text(lo, hi) -> str:
+    return f"({'0' if lo is None else _num(lo)}, {'inf' if hi is None else _num(hi)})"
+
+
+def _speed_class_line(label: str, v) -> str:
+    if v.verdict == "robust":
+        return f"{label}: stable for any such speeds ({v.method})"
+    if v.verdict == "fragile":
+        c = v.certificate
+        return (f"{label}: FRAGILE: speeds {_speeds_text(c['speeds'])} destabilise it "
+                f"(scaled abscissa {c['abscissa']:.2g}; {v.method})")
+    return f"{label}: undecided ({v.method})"
+
+
+def stability_lines(rep) -> list[str]:
+    """Stability verdicts in words, one per line."""
+    eq = rep.equal_speeds
+    words = {"stable": "stable", "borderline": "borderline (neither converges nor diverges locally)",
+             "unstable": "UNSTABLE"}
+    abscissa = "" if eq["abscissa"] is None else f" (spectral abscissa {eq['abscissa']:.3g})"
+    lines = [f"equal speeds: {words[eq['verdict']]}{abscissa}",
+             _speed_class_line("per-player speeds", rep.player_speeds)]
+    if rep.player_speeds.stable_ratios is not None:
+        spans = ", ".join(_interval_text(lo, hi) for lo, hi in rep.player_speeds.stable_ratios) or "none"
+        lines.append(f"  stable speed ratios k2/k1: {spans}")
+    lines.append(_speed_class_line("per-coordinate speeds", rep.coordinate_speeds))
+    extras = []
+    if rep.hicksian is not None:
+        extras.append("Hicksian" if rep.hicksian else "not Hicksian")
+    if rep.learning_rate_limit is not None:
+        extras.append(f"gradient steps stable below step size {_num(rep.learning_rate_limit)}")
+    br = rep.best_response
+    if br["verdict"] is not None:
+        extras.append(f"simultaneous best responses {br['verdict']} (radius {_num(br['spectral_radius'])})")
+    if extras:
+        lines.append("; ".join(extras))
+    return lines

@@ -23,6 +23,7 @@ from ._newton import newton_solve
 from ._sampling import unit_sample
 from ._status import Nash, Status
 from ._verify import verify
+from .stability import StabilityReport, classify_free
 
 
 @dataclass(frozen=True)
@@ -50,6 +51,9 @@ class Equilibrium:
         Coordinates strictly inside their bounds.
     starts : int
         How many starting points converged here.
+    stability : StabilityReport or None
+        Stability labels on the free (interior) coordinates, see
+        :func:`equipoise.stability.classify`; None when not requested.
     """
 
     x: np.ndarray
@@ -62,6 +66,7 @@ class Equilibrium:
     gains: np.ndarray
     interior: np.ndarray
     starts: int
+    stability: StabilityReport | None = None
 
 
 @dataclass(frozen=True)
@@ -150,7 +155,7 @@ def distinct(points: np.ndarray, residuals: np.ndarray, tol: float) -> list[tupl
 
 def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, seed: int = 0,
           ftol: float = 1e-10, xtol: float = 1e-10, max_steps: int = 100,
-          dedup_tol: float = 1e-6, deviation_starts: int = 16) -> Solution:
+          dedup_tol: float = 1e-6, deviation_starts: int = 16, stability: bool = True) -> Solution:
     """Find and verify the equilibria of ``game`` reachable from ``starts`` starts.
 
     Parameters
@@ -169,6 +174,8 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         Scaled tolerance under which two solutions are one, see :func:`distinct`.
     deviation_starts : int
         Starts per player of the global deviation check, see :func:`verify`.
+    stability : bool
+        Attach stability labels to each equilibrium (default True).
 
     Returns
     -------
@@ -218,6 +225,7 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
             gains=v.gains,
             interior=v.interior,
             starts=int(count),
+            stability=classify_free(v.jacobian, game.sizes, v.interior) if stability else None,
         ))
     counts = {s.name: int(np.sum(roots.status == s.code)) for s in Status if np.any(roots.status == s.code)}
     stats = {

@@ -83,6 +83,23 @@ def _cmd_demo(args) -> int:
     return _run_solve(game, game.name, args)
 
 
+def _cmd_check(args) -> int:
+    from .stability import classify
+    from .stability._input import load_jacobian
+
+    J, blocks = load_jacobian(args.file)
+    report = classify(J, blocks)
+    if args.json:
+        json.dump(report.to_dict(), sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(f"Jacobian: {args.file}   ({J.shape[0]} coordinates, blocks {list(blocks)})")
+        print("\n".join(_report.stability_lines(report)))
+        print()
+        print(_report.CAUTION)
+    return 0
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -99,6 +116,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("model", help="a Python file that defines `game`")
     _solve_options(p)
     p.set_defaults(func=_cmd_solve)
+    p = sub.add_parser("check", help="stability labels of a Jacobian given in a JSON file")
+    p.add_argument("file", help='JSON: {"jacobian": [[..]], "blocks": [m_1, ...]} (blocks optional)')
+    p.add_argument("--json", action="store_true", help="print the stability object as JSON")
+    p.set_defaults(func=_cmd_check)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)

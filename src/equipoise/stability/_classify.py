@@ -230,6 +230,8 @@ def classify(J, blocks=None) -> StabilityReport:
     J = np.asarray(J, dtype=float)
     n = J.shape[0]
     blocks = (1,) * n if blocks is None else tuple(int(b) for b in blocks)
+    if n == 0:
+        return _all_at_bounds()
     code, a = _spectral.equal_speeds(jax.numpy.asarray(J))
     scaled = float(a) / max(float(np.linalg.norm(J)), 1e-300)
     equal = {"verdict": _spectral.VERDICTS[int(code)], "abscissa": float(a)}
@@ -253,3 +255,20 @@ def classify(J, blocks=None) -> StabilityReport:
         br, rho = None, None
     return StabilityReport(equal, player, coordinate, hicksian, lr if np.isfinite(lr) else None,
                            {"verdict": br, "spectral_radius": rho})
+
+
+def _all_at_bounds() -> StabilityReport:
+    """Every action sits at a bound that its gradient pushes against: locally fixed."""
+    why = "no free coordinates: every action is held at a bound"
+    v = SpeedVerdict(ROBUST, why, {"criterion": why})
+    return StabilityReport({"verdict": "stable", "abscissa": None}, v, v, None, None,
+                           {"verdict": None, "spectral_radius": None})
+
+
+def classify_free(J, blocks, free) -> StabilityReport:
+    """:func:`classify` on the free coordinates ``free`` (bool mask) of a full Jacobian."""
+    J = np.asarray(J, dtype=float)
+    free = np.asarray(free, dtype=bool)
+    owner = np.repeat(np.arange(len(blocks)), blocks)
+    sub = [int(np.sum(free[owner == i])) for i in range(len(blocks))]
+    return classify(J[np.ix_(free, free)], [m for m in sub if m > 0])

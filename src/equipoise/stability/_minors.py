@@ -37,6 +37,7 @@ def principal_minors(A, sets):
     return jax.vmap(one)(jnp.asarray(sets))
 
 
+@jax.jit
 def normalised_minors(J, sets):
     r"""Minors of :math:`-J` divided by :math:`\|J\|_F^{|S|}` (scale-free)."""
     s = jnp.maximum(jnp.linalg.norm(J), 1e-300)

@@ -11,6 +11,8 @@ Both only propose; the caller re-verifies every certificate in float64.
 
 from __future__ import annotations
 
+import functools
+
 import jax
 import jax.numpy as jnp
 import numpy as np
@@ -29,6 +31,7 @@ def _abscissa_ratio(J, logk, G):
     return jnp.max(jnp.real(jnp.linalg.eigvals(M))) / jnp.linalg.norm(M)
 
 
+@functools.partial(jax.jit, static_argnames=("blocks", "starts", "steps", "seed", "spread"))
 def destabilising_speeds(J, blocks, starts=16, steps=150, seed=0, spread=3.0):
     """Best destabilising speeds found (one per block, max 1) and their scaled abscissa."""
     G = jnp.asarray(_expand(blocks))
@@ -74,6 +77,7 @@ def _lyapunov_ratio(J, theta, mask):
     return jnp.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (jnp.linalg.norm(P) * jnp.linalg.norm(J))
 
 
+@functools.partial(jax.jit, static_argnames=("blocks", "starts", "steps", "seed"))
 def lyapunov_weights(J, blocks, starts=8, steps=300, seed=0):
     """Best ``P`` found (block-diagonal per ``blocks``) and its scaled top eigenvalue.
 
