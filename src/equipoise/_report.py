@@ -48,6 +48,7 @@ def solution_dict(solution, game, model: str) -> dict[str, Any]:
             }
             for e in solution.equilibria
         ],
+        "rosen": solution.rosen,
         "stats": solution.stats,
         "caution": CAUTION,
     }
@@ -92,6 +93,12 @@ def solution_table(solution, game, model: str) -> str:
             gainers = [f"{p} (+{_num(float(g))})" for p, g in zip(game.players, e.gains) if g > 0]
             if gainers:
                 lines.append("  best deviation gains: " + ", ".join(gainers))
+    rosen = solution.rosen or {}
+    if rosen.get("weights"):
+        lines.append("")
+        lines.append("Rosen's condition holds (quadratic game) with player weights "
+                     f"{_speeds_text(rosen['weights'])}: the equilibrium is unique and gradient play "
+                     "(projected onto the bounds) reaches it from anywhere, at any per-player speeds.")
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)

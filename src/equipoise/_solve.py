@@ -24,6 +24,7 @@ from ._sampling import unit_sample
 from ._status import Nash, Status
 from ._verify import verify
 from .stability import StabilityReport, classify_free
+from .stability._rosen import is_constant, rosen_certificate
 
 
 @dataclass(frozen=True)
@@ -86,12 +87,20 @@ class Solution:
     stats : dict
         Effort: ``starts``, ``converged``, counts per status, Newton steps,
         ``seconds``.
+    rosen : dict or None
+        For a game whose Jacobian is constant on the sampled starts
+        (quadratic payoffs): ``{"quadratic": True, "weights": [...] or None,
+        "max_eigenvalue": ...}``; weights found mean a unique equilibrium
+        that gradient play reaches from anywhere at any per-player speeds
+        (see :mod:`equipoise.stability._rosen`). ``{"quadratic": False}``
+        otherwise; None when stability was not requested.
     """
 
     equilibria: list[Equilibrium]
     status: Status
     params: dict[str, np.ndarray]
     stats: dict[str, Any] = field(default_factory=dict)
+    rosen: dict[str, Any] | None = None
 
     @property
     def success(self) -> bool:
@@ -236,5 +245,18 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         "newton_steps_max": int(np.max(roots.steps)),
         "seconds": time.perf_counter() - t0,
     }
+    rosen = _rosen(game, theta, x0) if stability else None
+    stats["seconds"] = time.perf_counter() - t0
     status = Status.success if equilibria else Status.no_equilibrium
-    return Solution(equilibria, status, {k: np.asarray(v) for k, v in theta.items()}, stats)
+    return Solution(equilibria, status, {k: np.asarray(v) for k, v in theta.items()}, stats, rosen)
+
+
+def _rosen(game, theta, x0: np.ndarray) -> dict[str, Any]:
+    jac = game.cached("jacobian_batch", lambda: jax.jit(jax.vmap(game.jacobian, (0, None))))
+    Js = np.asarray(jac(jnp.asarray(x0[:4]), theta))
+    if not (np.all(np.isfinite(Js)) and is_constant(Js)):
+        return {"quadratic": False}
+    cert = rosen_certificate(Js[0], game.sizes)
+    if cert is None:
+        return {"quadratic": True, "weights": None, "max_eigenvalue": None}
+    return {"quadratic": True, **cert}

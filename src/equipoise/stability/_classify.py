@@ -26,6 +26,8 @@ FRAGILE_TOL = 1e-6
 LYAPUNOV_TOL = 1e-9
 #: Relative tolerance for the sign of a scaled principal minor.
 MINOR_TOL = 1e-10
+#: Rounding allowance when re-verifying diag(JX) >= 0 for an obstruction X.
+OBSTRUCTION_TOL = 1e-10
 
 ROBUST, FRAGILE, UNDECIDED = "robust", "fragile", "undecided"
 
@@ -39,6 +41,7 @@ class SpeedVerdict:
     certificate: dict[str, Any] | None
     effort: dict[str, Any] = field(default_factory=dict)
     stable_ratios: list | None = None
+    no_lyapunov: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out = {"verdict": self.verdict, "method": self.method, "certificate": self.certificate}
@@ -46,6 +49,8 @@ class SpeedVerdict:
             out["effort"] = self.effort
         if self.stable_ratios is not None:
             out["stable_ratios"] = self.stable_ratios
+        if self.no_lyapunov is not None:
+            out["no_lyapunov_certificate"] = self.no_lyapunov
         return out
 
 
@@ -98,6 +103,20 @@ def lyapunov_top(J: np.ndarray, P: np.ndarray, blocks) -> float | None:
     return float(np.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (np.linalg.norm(P) * np.linalg.norm(J)))
 
 
+def obstruction(J: np.ndarray) -> dict[str, Any] | None:
+    """A re-verified proof that no diagonal Lyapunov matrix exists, or None."""
+    X, _ = _search.diagonal_obstruction(jax.numpy.asarray(J))
+    X = np.asarray(X)
+    X = 0.5 * (X + X.T)
+    diag = np.diag(J @ X)
+    scale = np.linalg.norm(J) * np.trace(X)
+    if np.linalg.eigvalsh(X)[0] < -OBSTRUCTION_TOL * np.trace(X) or np.min(diag) < -OBSTRUCTION_TOL * scale:
+        return None
+    return {"X": X.tolist(), "diag_JX": diag.tolist(),
+            "reason": "X is positive semidefinite and diag(J X) >= 0, so tr((PJ + J^T P) X) >= 0 for every "
+                      "positive diagonal P"}
+
+
 def _robust_lyapunov(J, blocks, diagonal: bool, effort) -> SpeedVerdict | None:
     P, _ = _search.lyapunov_weights(jax.numpy.asarray(J), tuple(blocks))
     P = np.asarray(P)
@@ -139,7 +158,8 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
         holds, margin, speeds = (_exact.dstable_2x2 if n == 2 else _exact.dstable_3x3)(jax.numpy.asarray(J))
         name = "2x2 entrywise criterion" if n == 2 else "3x3 Routh-Hurwitz / Cauchy-Schwarz criterion"
         if bool(holds):
-            return SpeedVerdict(ROBUST, "exact " + name, {"criterion": name, "margin": float(margin)})
+            return SpeedVerdict(ROBUST, "exact " + name, {"criterion": name, "margin": float(margin)},
+                                no_lyapunov=obstruction(J) if n == 3 else None)
         if float(margin) < -MINOR_TOL:
             v = _fragile(J, np.asarray(speeds), ident, "exact " + name, effort)
             if v:
@@ -147,7 +167,14 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
     v = _robust_lyapunov(J, (1,) * n, True, effort)
     if v:
         return v
-    return _search_fragile(J, (1,) * n, ident, effort)
+    v = _search_fragile(J, (1,) * n, ident, effort)
+    return _with_obstruction(J, v)
+
+
+def _with_obstruction(J, v: SpeedVerdict) -> SpeedVerdict:
+    if v.verdict == FRAGILE:  # a destabilising D already rules out any Lyapunov matrix
+        return v
+    return SpeedVerdict(v.verdict, v.method, v.certificate, v.effort, v.stable_ratios, obstruction(J))
 
 
 def _search_fragile(J, blocks, coord_speeds, effort) -> SpeedVerdict:
