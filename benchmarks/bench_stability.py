@@ -1,0 +1,68 @@
+"""Stability labels in bulk, with a brute-force speed scan as the in-run reference.
+
+Figures:
+* 9 x 9 Jacobians (three players, three actions each): `classify` labels per second and
+  the share of `undecided`, against a naive scan of 200 random per-coordinate speed
+  vectors per matrix (numpy eigenvalues) timed in the same run;
+* 3 x 3 Jacobians: the exact criterion batched with `jax.vmap`, against a numpy loop of
+  one eigenvalue computation per matrix.
+
+    python benchmarks/bench_stability.py [--count N] [--exact-count M]
+"""
+
+import argparse
+import time
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+import equipoise  # noqa: F401  (float64 on)
+from equipoise.stability import classify
+from equipoise.stability._exact import dstable_3x3
+
+
+def random_hurwitz(rng, count, n):
+    M = rng.normal(size=(count, n, n))
+    shift = np.max(np.linalg.eigvals(M).real, axis=1) + rng.uniform(0.05, 1.0, size=count)
+    return M - shift[:, None, None] * np.eye(n)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--count", type=int, default=10_000)
+    ap.add_argument("--exact-count", type=int, default=100_000)
+    args = ap.parse_args()
+    rng = np.random.default_rng(0)
+
+    Js = random_hurwitz(rng, args.count, 9)
+    classify(Js[0], [3, 3, 3])  # compile outside the timing; reported separately
+    t = time.perf_counter()
+    reports = [classify(J, [3, 3, 3]) for J in Js]
+    t_ours = time.perf_counter() - t
+    undecided = np.mean([r.coordinate_speeds.verdict == "undecided" or r.player_speeds.verdict == "undecided"
+                         for r in reports])
+    t = time.perf_counter()
+    for J in Js[: max(1, args.count // 10)]:
+        d = np.exp(rng.uniform(-5, 5, size=(200, 9)))
+        np.linalg.eigvals(d[:, :, None] * J[None])
+    t_scan = (time.perf_counter() - t) * args.count / max(1, args.count // 10)
+    print(f"9x9 classify: {args.count / t_ours:.0f} labels/s, undecided {undecided:.2%}; "
+          f"naive 200-speed scan {args.count / t_scan:.0f}/s; ratio {t_scan / t_ours:.2f}x")
+
+    A = random_hurwitz(rng, args.exact_count, 3)
+    run = jax.jit(jax.vmap(dstable_3x3))
+    jax.block_until_ready(run(jnp.asarray(A[:8])))
+    t = time.perf_counter()
+    jax.block_until_ready(run(jnp.asarray(A)))
+    t_exact = time.perf_counter() - t
+    t = time.perf_counter()
+    for a in A[: max(1, args.exact_count // 10)]:
+        np.linalg.eigvals(a)
+    t_eig = (time.perf_counter() - t) * 10
+    print(f"3x3 exact criterion batched: {args.exact_count / t_exact:.0f}/s; "
+          f"numpy eigenvalue loop {args.exact_count / t_eig:.0f}/s; ratio {t_eig / t_exact:.1f}x")
+
+
+if __name__ == "__main__":
+    main()
