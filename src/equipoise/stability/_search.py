@@ -1,12 +1,17 @@
-r"""Optimisation searches for certificates (pure JAX with optax; ``vmap`` over starts).
+r"""Optimisation searches for certificates (pure JAX with optax; ``jit``/``vmap`` apply).
 
-* :func:`destabilising_speeds`: maximise the scale-free spectral abscissa
-  :math:`\max \mathrm{Re}\,\lambda(KJ) / \|KJ\|_F` over log-speeds.
-* :func:`lyapunov_weights`: minimise
-  :math:`\lambda_{\max}(PJ + J^T P) / (\|P\|_F \|J\|_F)` over positive diagonal
-  or block-diagonal positive definite :math:`P = LL^T`.
+* :func:`destabilising_speeds` maximises the scale-free spectral abscissa
+  :math:`\max \mathrm{Re}\,\lambda(KJ) / \|KJ\|_F` over log-speeds from several
+  starts (the problem is not convex).
+* :func:`lyapunov_weights`, :func:`player_weights` and :func:`diagonal_obstruction`
+  are convex problems over a normalised cone (trace one), parametrised by a
+  softmax (diagonals) or a Gram matrix ``L L^T`` (matrices). Both maps have a
+  full-rank derivative at interior points (``L`` invertible), so a stationary
+  point there of the composed objective is a global optimum of the convex one,
+  and a single start suffices. The objectives are not
+  smooth (a top eigenvalue, a minimum), so the step size decays over the run.
 
-Both only propose; the caller re-verifies every certificate in float64.
+Every search only proposes; the caller re-verifies each certificate in float64.
 """
 
 from __future__ import annotations
@@ -18,22 +23,15 @@ import jax.numpy as jnp
 import numpy as np
 import optax
 
-
 def _expand(blocks) -> np.ndarray:
     """``(n, k)`` 0/1 matrix giving each coordinate its player's speed."""
     owner = np.repeat(np.arange(len(blocks)), blocks)
     return (owner[:, None] == np.arange(len(blocks))[None, :]).astype(float)
 
 
-def _abscissa_ratio(J, logk, G):
-    k = jnp.exp(G @ (logk - jnp.max(logk)))
-    M = k[:, None] * J
-    return jnp.max(jnp.real(jnp.linalg.eigvals(M))) / jnp.linalg.norm(M)
-
-
-def _minimise(objective, x0s, steps: int, rate: float):
+def _minimise(objective, x0s, steps: int, rate: float, decay: bool = False):
     """Adam from each start in ``x0s`` (vmapped); the best value seen and where."""
-    opt = optax.adam(rate)
+    opt = optax.adam(optax.cosine_decay_schedule(rate, steps, alpha=1e-3) if decay else rate)
 
     def run(x):
         def step(carry, _):
@@ -56,6 +54,12 @@ def _minimise(objective, x0s, steps: int, rate: float):
     return xs[i], vals[i]
 
 
+def _abscissa_ratio(J, logk, G):
+    k = jnp.exp(G @ (logk - jnp.max(logk)))
+    M = k[:, None] * J
+    return jnp.max(jnp.real(jnp.linalg.eigvals(M))) / jnp.linalg.norm(M)
+
+
 @functools.partial(jax.jit, static_argnames=("blocks", "starts", "steps", "seed", "spread"))
 def destabilising_speeds(J, blocks, starts=16, steps=150, seed=0, spread=3.0):
     """Best destabilising speeds found (one per block, max 1) and their scaled abscissa."""
@@ -65,43 +69,62 @@ def destabilising_speeds(J, blocks, starts=16, steps=150, seed=0, spread=3.0):
     return jnp.exp(w - jnp.max(w)), -val
 
 
-def _lyapunov_matrix(theta, mask):
-    L = jnp.where(mask, jnp.tril(theta), 0.0)
-    L = L - jnp.diag(jnp.diag(L)) + jnp.diag(jnp.exp(jnp.diag(theta)))
-    return L @ L.T
+def _top(S):
+    return jnp.linalg.eigvalsh(0.5 * (S + S.T))[-1]
 
 
-def _top_ratio(J, P):
-    Q = P @ J + J.T @ P
-    return jnp.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (jnp.linalg.norm(P) * jnp.linalg.norm(J))
+def _gram(L, mask):
+    """``L L^T / tr(L L^T)`` with ``L`` lower triangular on the block pattern ``mask``."""
+    L = jnp.where(mask, jnp.tril(L), 0.0)
+    P = L @ L.T
+    return P / jnp.trace(P)
 
 
-@functools.partial(jax.jit, static_argnames=("blocks", "starts", "steps", "seed"))
-def lyapunov_weights(J, blocks, starts=8, steps=300, seed=0):
-    """Best ``P`` found (block-diagonal per ``blocks``) and its scaled top eigenvalue.
+def _unit(J):
+    return J / jnp.maximum(jnp.linalg.norm(J), 1e-300)
 
-    ``blocks`` of all ones gives a positive diagonal ``P``.
+
+@functools.partial(jax.jit, static_argnames=("blocks", "steps"))
+def lyapunov_weights(J, blocks, steps=400):
+    """Best ``P`` found (block-diagonal per ``blocks``; all ones: positive diagonal).
+
+    Minimises the top eigenvalue of ``PJ + J^T P`` over ``P`` of trace one.
+    Returns ``P`` (largest entry 1) and the scaled top eigenvalue.
     """
+    Jn = _unit(J)
     n = J.shape[0]
     owner = np.repeat(np.arange(len(blocks)), blocks)
     mask = jnp.asarray(owner[:, None] == owner[None, :])
-    t0 = jax.random.normal(jax.random.PRNGKey(seed), (starts, n, n)).at[0].set(0.0)
-    t, val = _minimise(lambda t: _top_ratio(J, _lyapunov_matrix(t, mask)), t0, steps, 0.05)
-    P = _lyapunov_matrix(t, mask)
+    if all(b == 1 for b in blocks):
+        def matrix(w):
+            return jnp.diag(jax.nn.softmax(w))
+        x0 = jnp.zeros((1, n))
+    else:
+        def matrix(L):
+            return _gram(L, mask)
+        x0 = jnp.eye(n)[None]
+    x, val = _minimise(lambda x: _top(matrix(x) @ Jn + Jn.T @ matrix(x)), x0, steps, 0.1, decay=True)
+    P = matrix(x)
     return P / jnp.max(jnp.abs(P)), val
 
 
-@functools.partial(jax.jit, static_argnames=("blocks", "starts", "steps", "seed"))
-def player_weights(J, blocks, starts=8, steps=300, seed=0):
+@functools.partial(jax.jit, static_argnames=("blocks", "steps"))
+def player_weights(J, blocks, steps=400):
     """Best weights ``r`` (one per player, max 1) for ``R = blockdiag(r_i I)``, and the scaled top eigenvalue."""
+    Jn = _unit(J)
     G = jnp.asarray(_expand(blocks))
-    w0 = jax.random.normal(jax.random.PRNGKey(seed), (starts, len(blocks))).at[0].set(0.0)
-    w, val = _minimise(lambda w: _top_ratio(J, jnp.diag(jnp.exp(G @ w))), w0, steps, 0.05)
-    return jnp.exp(w - jnp.max(w)), val
+
+    def matrix(w):
+        return jnp.diag(G @ jax.nn.softmax(w))
+
+    w, val = _minimise(lambda w: _top(matrix(w) @ Jn + Jn.T @ matrix(w)),
+                       jnp.zeros((1, len(blocks))), steps, 0.1, decay=True)
+    r = jax.nn.softmax(w)
+    return r / jnp.max(r), val
 
 
-@functools.partial(jax.jit, static_argnames=("starts", "steps", "seed"))
-def diagonal_obstruction(J, starts=8, steps=300, seed=0):
+@functools.partial(jax.jit, static_argnames=("steps",))
+def diagonal_obstruction(J, steps=400):
     r"""Search for :math:`X \succeq 0`, :math:`\mathrm{tr}\,X = 1`, maximising :math:`\min_i (JX)_{ii}`.
 
     A result with :math:`\min_i (JX)_{ii} \ge 0` proves that no positive
@@ -109,16 +132,12 @@ def diagonal_obstruction(J, starts=8, steps=300, seed=0):
     :math:`\mathrm{tr}((PJ + J^T P) X) = 2 \sum_i p_i (JX)_{ii}`.
     Returns ``X`` and ``min_i (JX)_ii / |J|_F``.
     """
+    Jn = _unit(J)
     n = J.shape[0]
-    t0 = jax.random.normal(jax.random.PRNGKey(seed), (starts, n, n))
+    full = jnp.ones((n, n), dtype=bool)
 
-    def gram(t):
-        L = jnp.tril(t)
-        X = L @ L.T
-        return X / jnp.trace(X)
+    def objective(L):
+        return -jnp.min(jnp.diag(Jn @ _gram(L, full)))
 
-    def objective(t):
-        return -jnp.min(jnp.diag(J @ gram(t))) / jnp.linalg.norm(J)
-
-    t, val = _minimise(objective, t0, steps, 0.05)
-    return gram(t), -val
+    L, val = _minimise(objective, jnp.eye(n)[None], steps, 0.1, decay=True)
+    return _gram(L, full), -val
