@@ -14,10 +14,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-import jax
 import numpy as np
 
-from . import _exact, _minors, _search, _spectral
+from . import _minors, _spectral
+from ._evidence import Evidence, Pending, compute
 from ._ratios import stable_ratio_intervals
 
 #: A destabilising certificate must push the scaled abscissa above this.
@@ -103,9 +103,9 @@ def lyapunov_top(J: np.ndarray, P: np.ndarray, blocks) -> float | None:
     return float(np.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (np.linalg.norm(P) * np.linalg.norm(J)))
 
 
-def obstruction(J: np.ndarray) -> dict[str, Any] | None:
+def obstruction(J: np.ndarray, ev: Evidence) -> dict[str, Any] | None:
     """A re-verified proof that no diagonal Lyapunov matrix exists, or None."""
-    X, _ = _search.diagonal_obstruction(jax.numpy.asarray(J))
+    X, _ = ev.get("obstruction")
     X = np.asarray(X)
     X = 0.5 * (X + X.T)
     diag = np.diag(J @ X)
@@ -117,8 +117,8 @@ def obstruction(J: np.ndarray) -> dict[str, Any] | None:
                       "positive diagonal P"}
 
 
-def _robust_lyapunov(J, blocks, diagonal: bool, effort) -> SpeedVerdict | None:
-    P, _ = _search.lyapunov_weights(jax.numpy.asarray(J), tuple(blocks))
+def _robust_lyapunov(J, blocks, diagonal: bool, effort, ev: Evidence) -> SpeedVerdict | None:
+    P, _ = ev.get("lyapunov", tuple(blocks))
     P = np.asarray(P)
     P = 0.5 * (P + P.T)
     P[~_spectral.block_mask(blocks)] = 0.0
@@ -133,7 +133,7 @@ def _robust_lyapunov(J, blocks, diagonal: bool, effort) -> SpeedVerdict | None:
 
 
 # ---------------------------------------------------------------- speed classes
-def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
+def _coordinate_verdict(J: np.ndarray, equal_abscissa: float, ev: Evidence) -> SpeedVerdict:
     n = J.shape[0]
     ident = lambda k: k  # noqa: E731
     if equal_abscissa > FRAGILE_TOL:
@@ -143,7 +143,7 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
     effort: dict[str, Any] = {}
     if n <= _minors.MAX_ENUMERATION:
         sets = _minors.subsets(n)
-        minors = np.asarray(_minors.normalised_minors(jax.numpy.asarray(J), sets))
+        minors = np.asarray(ev.get("minors"))
         k = int(np.argmin(minors))
         effort["principal_minors"] = int(len(sets))
         if minors[k] < -MINOR_TOL:
@@ -155,37 +155,33 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float) -> SpeedVerdict:
         if J[0, 0] < 0:
             return SpeedVerdict(ROBUST, "scalar: negative own slope", {"criterion": "J < 0"})
     elif n in (2, 3):
-        holds, margin, speeds = (_exact.dstable_2x2 if n == 2 else _exact.dstable_3x3)(jax.numpy.asarray(J))
+        holds, margin, speeds = ev.get("exact")
         name = "2x2 entrywise criterion" if n == 2 else "3x3 Routh-Hurwitz / Cauchy-Schwarz criterion"
         if bool(holds):
             return SpeedVerdict(ROBUST, "exact " + name, {"criterion": name, "margin": float(margin)},
-                                no_lyapunov=obstruction(J) if n == 3 else None)
+                                no_lyapunov=obstruction(J, ev) if n == 3 else None)
         if float(margin) < -MINOR_TOL:
             v = _fragile(J, np.asarray(speeds), ident, "exact " + name, effort)
             if v:
                 return v
-    v = _robust_lyapunov(J, (1,) * n, True, effort)
+    v = _robust_lyapunov(J, (1,) * n, True, effort, ev)
     if v:
         return v
-    v = _search_fragile(J, (1,) * n, ident, effort)
-    return _with_obstruction(J, v)
-
-
-def _with_obstruction(J, v: SpeedVerdict) -> SpeedVerdict:
+    v = _search_fragile(J, (1,) * n, ident, effort, ev)
     if v.verdict == FRAGILE:  # a destabilising D already rules out any Lyapunov matrix
         return v
-    return SpeedVerdict(v.verdict, v.method, v.certificate, v.effort, v.stable_ratios, obstruction(J))
+    return SpeedVerdict(v.verdict, v.method, v.certificate, v.effort, v.stable_ratios, obstruction(J, ev))
 
 
-def _search_fragile(J, blocks, coord_speeds, effort) -> SpeedVerdict:
-    starts = 16
-    speeds, best = _search.destabilising_speeds(jax.numpy.asarray(J), tuple(blocks), starts=starts)
-    effort.update({"search_starts": starts, "best_scaled_abscissa": float(best)})
+def _search_fragile(J, blocks, coord_speeds, effort, ev: Evidence) -> SpeedVerdict:
+    speeds, best = ev.get("fragile", tuple(blocks))
+    effort.update({"search": "Adam over log-speeds, 16 starts x 150 steps", "best_scaled_abscissa": float(best)})
     v = _fragile(J, np.asarray(speeds), coord_speeds, "search over log-speeds", effort)
     return v or SpeedVerdict(UNDECIDED, "no certificate found", None, effort)
 
 
-def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: SpeedVerdict) -> SpeedVerdict:
+def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: SpeedVerdict,
+                    ev: Evidence) -> SpeedVerdict:
     blocks = tuple(int(b) for b in blocks)
     expand = lambda k: np.repeat(k, blocks)  # noqa: E731
     if all(b == 1 for b in blocks) and len(blocks) != 2:
@@ -214,10 +210,10 @@ def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: Sp
         return SpeedVerdict(ROBUST, "implied by per-coordinate robustness (" + coordinate.method + ")",
                             coordinate.certificate)
     effort: dict[str, Any] = {}
-    v = _robust_lyapunov(J, blocks, False, effort)
+    v = _robust_lyapunov(J, blocks, False, effort, ev)
     if v:
         return v
-    return _search_fragile(J, blocks, expand, effort)
+    return _search_fragile(J, blocks, expand, effort, ev)
 
 
 def _unstable_probes(ratios) -> list[float]:
@@ -248,6 +244,10 @@ def classify(J, blocks=None) -> StabilityReport:
     -------
     StabilityReport
 
+    See Also
+    --------
+    classify_batch : the same for a stack of Jacobians, with the searches batched.
+
     Examples
     --------
     >>> rep = classify([[1.0, -2.0], [3.0, -4.0]])
@@ -255,28 +255,67 @@ def classify(J, blocks=None) -> StabilityReport:
     ('stable', 'fragile')
     """
     J = np.asarray(J, dtype=float)
-    n = J.shape[0]
+    return classify_batch(J[None], blocks)[0]
+
+
+def classify_batch(Js, blocks=None) -> list[StabilityReport]:
+    """:func:`classify` for a stack ``Js`` of shape ``(B, n, n)`` sharing ``blocks``.
+
+    The cheap evidence is computed for all matrices at once; each search runs
+    batched, and only for the matrices whose decision needs it.
+    """
+    Js = np.asarray(Js, dtype=float)
+    if Js.ndim != 3 or Js.shape[1] != Js.shape[2]:
+        raise ValueError(f"expected a stack of square matrices, got shape {Js.shape}")
+    n = Js.shape[1]
     blocks = (1,) * n if blocks is None else tuple(int(b) for b in blocks)
     if n == 0:
-        return _all_at_bounds()
-    code, a = _spectral.equal_speeds(jax.numpy.asarray(J))
+        return [_all_at_bounds() for _ in range(Js.shape[0])]
+    stores: list[dict] = [{} for _ in range(Js.shape[0])]
+    upfront = [("equal", ()), ("learning_rate", ()), ("best_response", blocks), ("lyapunov", (1,) * n)]
+    if n <= _minors.MAX_ENUMERATION:
+        upfront.append(("minors", ()))
+    if n in (2, 3):
+        upfront.append(("exact", ()))
+    for kind, b in upfront:
+        for store, value in zip(stores, compute(kind, b, Js)):
+            store[(kind, b)] = value
+    results: list[StabilityReport | None] = [None] * Js.shape[0]
+    waiting = list(range(Js.shape[0]))
+    while waiting:
+        asked: dict[tuple, list[int]] = {}
+        still = []
+        for i in waiting:
+            requests: set = set()
+            try:
+                results[i] = _decide(Js[i], blocks, Evidence(Js[i], stores[i], requests))
+            except Pending:
+                still.append(i)
+                for key in requests:
+                    asked.setdefault(key, []).append(i)
+        for (kind, b), idx in asked.items():
+            for i, value in zip(idx, compute(kind, b, Js[idx])):
+                stores[i][(kind, b)] = value
+        waiting = still
+    return results
+
+
+def _decide(J: np.ndarray, blocks, ev: Evidence) -> StabilityReport:
+    n = J.shape[0]
+    code, a = ev.get("equal")
     scaled = float(a) / max(float(np.linalg.norm(J)), 1e-300)
     equal = {"verdict": _spectral.VERDICTS[int(code)], "abscissa": float(a)}
-    coordinate = _coordinate_verdict(J, scaled)
-    player = _player_verdict(J, blocks, scaled, coordinate)
+    coordinate = _coordinate_verdict(J, scaled, ev)
+    player = _player_verdict(J, blocks, scaled, coordinate, ev)
     if player.verdict == FRAGILE and coordinate.verdict != FRAGILE:
         speeds = np.repeat(player.certificate["speeds"], blocks)
         coordinate = _fragile(J, speeds, lambda k: k, "implied by per-player fragility") or coordinate
     hicksian = None
     if n <= _minors.MAX_ENUMERATION:
-        minors = np.asarray(_minors.normalised_minors(jax.numpy.asarray(J), _minors.subsets(n)))
-        hicksian = bool(np.all(minors > MINOR_TOL))
-    lr = float(_spectral.learning_rate_limit(jax.numpy.asarray(J)))
-    try:
-        rho = float(_spectral.best_response_radius(jax.numpy.asarray(J), blocks))
-    except Exception:  # singular own Hessian: best responses undefined
-        rho = float("nan")
-    if np.isfinite(rho):
+        hicksian = bool(np.all(np.asarray(ev.get("minors")) > MINOR_TOL))
+    lr = float(ev.get("learning_rate"))
+    rho = float(ev.get("best_response", blocks))
+    if np.isfinite(rho):  # not finite: a singular own Hessian, best responses undefined
         br = "stable" if rho < 1 - 1e-9 else ("unstable" if rho > 1 + 1e-9 else "neutral")
     else:
         br, rho = None, None

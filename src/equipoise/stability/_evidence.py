@@ -1,0 +1,85 @@
+"""The numerical evidence a stability decision draws on, one matrix or a batch at a time.
+
+Decisions ask an :class:`Evidence` for what they need (``get(kind, blocks)``).
+For a single matrix the answer is computed at once by a jitted function. In a
+batch, a missing answer raises :class:`Pending` and is recorded; the batch
+driver computes all recorded requests of one kind together (``vmap``, padded to
+a power of two so few shapes compile) and runs the waiting decisions again.
+Expensive searches are therefore paid for only by the matrices that need them.
+"""
+
+from __future__ import annotations
+
+import functools
+
+import jax
+import jax.numpy as jnp
+import numpy as np
+
+from . import _exact, _minors, _search, _spectral
+
+
+class Pending(Exception):
+    """Raised in batch mode when a decision needs evidence not yet computed."""
+
+
+def _exact_fn(J, blocks):
+    n = J.shape[0]
+    if n == 2:
+        return _exact.dstable_2x2(J)
+    if n == 3:
+        return _exact.dstable_3x3(J)
+    return jnp.asarray(False), jnp.asarray(jnp.nan), jnp.ones(n)
+
+
+def _minors_fn(J, blocks):
+    return _minors.normalised_minors(J, jnp.asarray(_minors.subsets(J.shape[0])))
+
+
+KINDS = {
+    "equal": lambda J, blocks: _spectral.equal_speeds(J),
+    "learning_rate": lambda J, blocks: _spectral.learning_rate_limit(J),
+    "best_response": lambda J, blocks: _spectral.best_response_radius(J, blocks),
+    "minors": _minors_fn,
+    "exact": _exact_fn,
+    "lyapunov": lambda J, blocks: _search.lyapunov_weights(J, blocks),
+    "fragile": lambda J, blocks: _search.destabilising_speeds(J, blocks),
+    "obstruction": lambda J, blocks: _search.diagonal_obstruction(J),
+}
+
+
+@functools.lru_cache(maxsize=None)
+def _batched(kind: str, blocks: tuple[int, ...]):
+    return jax.jit(jax.vmap(lambda J: KINDS[kind](J, blocks)))
+
+
+def _to_numpy(value):
+    return jax.tree.map(np.asarray, value)
+
+
+def compute(kind: str, blocks: tuple[int, ...], Js: np.ndarray) -> list:
+    """Evidence ``kind`` for each matrix of the stack ``Js`` (one compile per padded size)."""
+    count = Js.shape[0]
+    size = 1 << max(0, (count - 1).bit_length())
+    padded = np.concatenate([Js, np.repeat(Js[:1], size - count, axis=0)]) if size > count else Js
+    out = _to_numpy(_batched(kind, blocks)(jnp.asarray(padded)))
+    leaves, tree = jax.tree.flatten(out)
+    return [jax.tree.unflatten(tree, [leaf[i] for leaf in leaves]) for i in range(count)]
+
+
+class Evidence:
+    """Answers for one matrix; see the module docstring."""
+
+    def __init__(self, J: np.ndarray, store: dict | None = None, requests: set | None = None):
+        self.J = J
+        self.store = {} if store is None else store
+        self.requests = requests
+
+    def get(self, kind: str, blocks: tuple[int, ...] = ()):
+        key = (kind, tuple(blocks))
+        if key not in self.store:
+            if self.requests is not None:
+                self.requests.add(key)
+                raise Pending(key)
+            self.store[key] = compute(kind, key[1], self.J[None])[0]
+        return self.store[key]
