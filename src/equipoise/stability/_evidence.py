@@ -43,6 +43,7 @@ KINDS = {
     "minors": _minors_fn,
     "exact": _exact_fn,
     "lyapunov": lambda J, blocks: _search.lyapunov_weights(J, blocks),
+    "lyapunov_candidates": lambda J, blocks: _search.lyapunov_candidates(J, blocks),
     "fragile": lambda J, blocks: _search.destabilising_speeds(J, blocks),
     "obstruction": lambda J, blocks: _search.diagonal_obstruction(J),
 }

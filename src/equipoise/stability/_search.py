@@ -141,3 +141,23 @@ def diagonal_obstruction(J, steps=400):
 
     L, val = _minimise(objective, jnp.eye(n)[None], steps, 0.1, decay=True)
     return _gram(L, full), -val
+
+
+@functools.partial(jax.jit, static_argnames=("blocks",))
+def lyapunov_candidates(J, blocks):
+    """Cheap candidate weight matrices, shape ``(3, n, n)``, on the block pattern of ``blocks``.
+
+    The identity; the block-diagonal part of the solution ``X`` of
+    ``X J + J^T X = -I`` (positive definite when ``J`` is Hurwitz, and so is
+    its block-diagonal part); and ``diag(1 / |J_kk|)``.
+    """
+    n = J.shape[0]
+    owner = np.repeat(np.arange(len(blocks)), blocks)
+    mask = jnp.asarray(owner[:, None] == owner[None, :])
+    eye = jnp.eye(n)
+    A = jnp.kron(eye, J.T) + jnp.kron(J.T, eye)
+    X = jnp.linalg.solve(A, -eye.reshape(-1)).reshape(n, n)
+    X = jnp.where(mask, 0.5 * (X + X.T), 0.0)
+    D = jnp.diag(1.0 / jnp.maximum(jnp.abs(jnp.diag(J)), 1e-300))
+    cands = jnp.stack([eye, X, D])
+    return cands / jnp.max(jnp.abs(cands), axis=(1, 2), keepdims=True)
