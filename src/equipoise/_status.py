@@ -1,8 +1,8 @@
-"""Outcome codes shared by every solver.
+"""Outcome codes shared by every solver, and the Nash verification labels.
 
-Each member's value is the human message (empty for success). Under ``jit``
-and ``vmap`` outcomes travel as integer codes (``Status.x.code``); turn a code
-back into a member with :meth:`Status.from_code`.
+Each member's value is the human message or label. Under ``jit`` and ``vmap``
+members travel as integer codes (``Status.x.code``, the member's position);
+turn a code back into a member with ``Status.from_code``.
 """
 
 import enum
@@ -10,7 +10,17 @@ import enum
 import numpy as np
 
 
-class Status(enum.Enum):
+class _Coded(enum.Enum):
+    @property
+    def code(self) -> int:
+        return list(type(self)).index(self)
+
+    @classmethod
+    def from_code(cls, code):
+        return list(cls)[int(np.asarray(code))]
+
+
+class Status(_Coded):
     """Outcome of a solve; the value is the message shown to users."""
 
     success = ""
@@ -26,23 +36,11 @@ class Status(enum.Enum):
     no_equilibrium = "no starting point converged to an equilibrium"
 
     @property
-    def code(self) -> int:
-        return _CODES[self]
-
-    @property
     def message(self) -> str:
         return self.value or "success"
 
-    @classmethod
-    def from_code(cls, code) -> "Status":
-        return _MEMBERS[int(np.asarray(code))]
 
-
-_MEMBERS = tuple(Status)
-_CODES = {member: i for i, member in enumerate(_MEMBERS)}
-
-
-class Nash(enum.Enum):
+class Nash(_Coded):
     """Verification label of a first-order point.
 
     ``global``: no player found a profitable deviation anywhere in its action
@@ -54,15 +52,3 @@ class Nash(enum.Enum):
     global_ = "global"
     local = "local"
     not_nash = "not_nash"
-
-    @property
-    def code(self) -> int:
-        return _NASH_CODES[self]
-
-    @classmethod
-    def from_code(cls, code) -> "Nash":
-        return _NASH_MEMBERS[int(np.asarray(code))]
-
-
-_NASH_MEMBERS = tuple(Nash)
-_NASH_CODES = {member: i for i, member in enumerate(_NASH_MEMBERS)}
