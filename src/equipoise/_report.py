@@ -44,7 +44,7 @@ def solution_dict(solution, game, model: str) -> dict[str, Any]:
                 "jacobian": np.asarray(e.jacobian).tolist(),
                 "deviation_gains": {p: float(g) for p, g in zip(game.players, e.gains)},
                 "starts": e.starts,
-                "stability": e.stability.to_dict() if e.stability is not None else None,
+                "stability": _stability_dict(e, game),
             }
             for e in solution.equilibria
         ],
@@ -52,6 +52,15 @@ def solution_dict(solution, game, model: str) -> dict[str, Any]:
         "stats": solution.stats,
         "caution": CAUTION,
     }
+
+
+def _stability_dict(e, game) -> dict[str, Any] | None:
+    """The stability object, naming the free coordinates its certificates refer to."""
+    if e.stability is None:
+        return None
+    out = e.stability.to_dict()
+    out["coordinates"] = [game.coordinate_name(k) for k in range(game.n) if e.interior[k]]
+    return out
 
 
 def _num(v: float) -> str:

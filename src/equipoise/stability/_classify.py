@@ -18,7 +18,7 @@ import numpy as np
 
 from . import _minors, _spectral
 from ._evidence import Evidence, Pending, compute
-from ._ratios import stable_ratio_intervals
+from ._ratios import probe_ratio, stable_ratio_intervals
 
 #: A destabilising certificate must push the scaled abscissa above this.
 FRAGILE_TOL = 1e-6
@@ -78,9 +78,12 @@ class StabilityReport:
 
 # ---------------------------------------------------------------- re-verification
 def speeds_abscissa(J: np.ndarray, speeds: np.ndarray) -> float:
-    """Scaled abscissa ``max Re eig(KJ) / |KJ|_F`` in float64 numpy."""
+    """Scaled abscissa ``max Re eig(KJ) / |KJ|_F`` in float64 numpy (-inf for ``KJ = 0``)."""
     M = np.asarray(speeds, dtype=float)[:, None] * J
-    return float(np.max(np.linalg.eigvals(M).real) / max(np.linalg.norm(M), 1e-300))
+    norm = np.linalg.norm(M)
+    if not np.isfinite(norm) or norm == 0:
+        return -np.inf
+    return float(np.max(np.linalg.eigvals(M / norm).real))
 
 
 def _fragile(J, speeds, coord_speeds, method, effort=None) -> SpeedVerdict | None:
@@ -97,6 +100,8 @@ def _fragile(J, speeds, coord_speeds, method, effort=None) -> SpeedVerdict | Non
 def lyapunov_top(J: np.ndarray, P: np.ndarray, blocks) -> float | None:
     """Scaled top eigenvalue of ``PJ + J^T P`` if ``P`` is a valid weight matrix, else None."""
     P = 0.5 * (P + P.T)
+    if not np.all(np.isfinite(P)) or np.linalg.norm(J) == 0:
+        return None
     if np.any(P[~_spectral.block_mask(blocks)] != 0) or np.linalg.eigvalsh(P)[0] <= 0:
         return None
     Q = P @ J + J.T @ P
@@ -157,6 +162,10 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float, ev: Evidence) -> S
                 v = _fragile(J, np.where(sets[k], 1.0, eps), ident, "negative principal minor of -J", effort)
                 if v:
                     return v
+    if n >= 2 and np.all(np.diag(J) < 0) and (not np.any(np.triu(J, 1)) or not np.any(np.tril(J, -1))):
+        # DJ is triangular too, with eigenvalues d_k J_kk < 0 for every positive D.
+        return SpeedVerdict(ROBUST, "exact: triangular with negative diagonal",
+                            {"criterion": "triangular with negative diagonal"})
     if n == 1:
         if J[0, 0] < 0:
             return SpeedVerdict(ROBUST, "scalar: negative own slope", {"criterion": "J < 0"})
@@ -227,12 +236,7 @@ def _unstable_probes(ratios) -> list[float]:
     for lo, hi in ratios:
         edges += [0.0 if lo is None else lo, np.inf if hi is None else hi]
     edges.append(np.inf)
-    probes = []
-    for lo, hi in zip(edges[0::2], edges[1::2]):
-        if hi <= lo:
-            continue
-        probes.append(hi / 10 if lo == 0 else lo * 10 if hi == np.inf else float(np.sqrt(lo * hi)))
-    return probes
+    return [probe_ratio(lo, hi) for lo, hi in zip(edges[0::2], edges[1::2]) if hi > lo]
 
 
 def classify(J, blocks=None) -> StabilityReport:
@@ -277,6 +281,13 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
     blocks = (1,) * n if blocks is None else tuple(int(b) for b in blocks)
     if n == 0:
         return [_all_at_bounds() for _ in range(Js.shape[0])]
+    if not np.all(np.isfinite(Js)):
+        raise ValueError("expected finite Jacobian entries")
+    # Verdicts are unit-free: work at unit largest entry, report abscissae and step sizes in the
+    # original units. This keeps eigenvalue routines away from overflow and underflow.
+    units = np.max(np.abs(Js), axis=(1, 2))
+    units = np.where(units > 0, units, 1.0)
+    Js = Js / units[:, None, None]
     stores: list[dict] = [{} for _ in range(Js.shape[0])]
     upfront = [("equal", ()), ("learning_rate", ()), ("best_response", blocks), ("lyapunov_candidates", (1,) * n)]
     if n <= _minors.MAX_ENUMERATION:
@@ -294,7 +305,7 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
         for i in waiting:
             requests: set = set()
             try:
-                results[i] = _decide(Js[i], blocks, Evidence(Js[i], stores[i], requests))
+                results[i] = _decide(Js[i], blocks, Evidence(Js[i], stores[i], requests), units[i])
             except Pending:
                 still.append(i)
                 for key in requests:
@@ -306,11 +317,11 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
     return results
 
 
-def _decide(J: np.ndarray, blocks, ev: Evidence) -> StabilityReport:
+def _decide(J: np.ndarray, blocks, ev: Evidence, unit: float) -> StabilityReport:
     n = J.shape[0]
     code, a = ev.get("equal")
     scaled = float(a) / max(float(np.linalg.norm(J)), 1e-300)
-    equal = {"verdict": _spectral.VERDICTS[int(code)], "abscissa": float(a)}
+    equal = {"verdict": _spectral.VERDICTS[int(code)], "abscissa": float(a) * unit}
     coordinate = _coordinate_verdict(J, scaled, ev)
     player = _player_verdict(J, blocks, scaled, coordinate, ev)
     if player.verdict == FRAGILE and coordinate.verdict != FRAGILE:
@@ -319,7 +330,7 @@ def _decide(J: np.ndarray, blocks, ev: Evidence) -> StabilityReport:
     hicksian = None
     if n <= _minors.MAX_ENUMERATION:
         hicksian = bool(np.all(np.asarray(ev.get("minors")) > MINOR_TOL))
-    lr = float(ev.get("learning_rate"))
+    lr = float(ev.get("learning_rate")) / unit
     rho = float(ev.get("best_response", blocks))
     if np.isfinite(rho):  # not finite: a singular own Hessian, best responses undefined
         br = "stable" if rho < 1 - 1e-9 else ("unstable" if rho > 1 + 1e-9 else "neutral")

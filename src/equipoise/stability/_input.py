@@ -40,7 +40,10 @@ def load_jacobian(path: str | os.PathLike) -> tuple[np.ndarray, tuple[int, ...]]
     if any(len(r) != n for r in rows):
         raise InputError(f"{path}: field \"jacobian\": expected a square matrix, got {n} rows of lengths "
                          f"{sorted({len(r) for r in rows})}")
-    J = np.asarray(rows, dtype=float)
+    try:
+        J = np.asarray(rows, dtype=float)
+    except OverflowError:
+        J = np.full((n, n), np.inf)
     if not np.all(np.isfinite(J)):
         raise InputError(f"{path}: field \"jacobian\": expected finite numbers")
     blocks = data.get("blocks")

@@ -39,8 +39,23 @@ def critical_ratios(J: np.ndarray, m1: int) -> np.ndarray:
 def _stable_at(J: np.ndarray, m1: int, tau: float) -> bool:
     k = np.ones(J.shape[0])
     k[m1:] = tau
+    k = k / k.max()  # the same ratio, without overflow at extreme tau
     M = k[:, None] * J
-    return bool(np.max(np.linalg.eigvals(M).real) < -ZERO_TOL * np.linalg.norm(M))
+    norm = np.linalg.norm(M)
+    if not np.isfinite(norm) or norm == 0:
+        return False
+    return bool(np.max(np.linalg.eigvals(M / norm).real) < -ZERO_TOL)
+
+
+def probe_ratio(lo: float, hi: float) -> float:
+    """A ratio inside ``(lo, hi)``: 1 when it lies inside (least sensitive to rounding), else log-central."""
+    if lo < 1.0 < hi:
+        return 1.0
+    if lo == 0.0:
+        return hi / 10.0
+    if hi == np.inf:
+        return lo * 10.0
+    return float(np.sqrt(lo * hi))
 
 
 def stable_ratio_intervals(J: np.ndarray, m1: int) -> list[list[float | None]]:
@@ -49,14 +64,7 @@ def stable_ratio_intervals(J: np.ndarray, m1: int) -> list[list[float | None]]:
     edges = [0.0, *roots.tolist(), np.inf]
     out: list[list[float | None]] = []
     for lo, hi in zip(edges[:-1], edges[1:]):
-        if lo == 0.0 and hi == np.inf:
-            probe = 1.0
-        elif lo == 0.0:
-            probe = hi / 10.0
-        elif hi == np.inf:
-            probe = lo * 10.0
-        else:
-            probe = float(np.sqrt(lo * hi))
+        probe = probe_ratio(lo, hi)
         if _stable_at(J, m1, probe):
             if out and out[-1][1] == lo:
                 out[-1][1] = hi
