@@ -340,10 +340,6 @@ def test_singular_jacobian_gives_a_report():
     assert rep.coordinate_speeds.verdict != "robust"
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "gap: the 3x3 criterion requires the Cain sum to exceed sqrt(det B) strictly, but equality "
-    "is allowed when the infimum is not attained (a zero diagonal entry of J); "
-    "J = [[0,1,0],[-3,-1,0],[1,-2,-2]] is D-stable yet gets 'undecided'"))
 def test_3x3_boundary_dstable_is_robust():
     # Derived: D J is block lower-triangular; its blocks are d3 * (-2) < 0 and D12 [[0, 1], [-3, -1]],
     # stable for every positive D12 by the 2x2 criterion (Johnson 1974, from memory: a11 = 0 <= 0,

@@ -10,6 +10,9 @@ principal 2-minors:
   D-stable iff :math:`B \in P_0^+` and
   :math:`\sqrt{b_{11}B_{23}} + \sqrt{b_{22}B_{13}} + \sqrt{b_{33}B_{12}} \ge \sqrt{\det B}`;
   when the inequality fails, :math:`d_i \propto \sqrt{B_{jk}/b_{ii}}` destabilises.
+  Equality suffices when the Cauchy--Schwarz bound cannot be attained by a
+  positive finite :math:`d` (some :math:`i` has exactly one of
+  :math:`b_{ii}, B_{jk}` zero).
 
 Each function returns ``(holds, margin, speeds)``: whether the criterion holds
 with a margin above the tolerance, the scaled margin, and candidate
@@ -49,7 +52,12 @@ def dstable_3x3(J, tol=1e-10):
     det = jnp.linalg.det(B)
     p0 = jnp.all(b >= -tol) & jnp.all(m2 >= -tol) & (det > tol) & (jnp.sum(b) > tol) & (jnp.sum(m2) > tol)
     cain = jnp.sum(jnp.sqrt(jnp.maximum(b * m2, 0.0))) - jnp.sqrt(jnp.maximum(det, 0.0))
-    holds = p0 & (cain > tol)
+    # Equality is enough when Cauchy-Schwarz cannot be tight for positive finite d: some i
+    # has exactly one of b_ii, B_jk zero (b_ii d_i^2 proportional to B_jk is impossible).
+    zero_b = jnp.abs(b) <= 1e-13
+    zero_m = jnp.abs(m2) <= 1e-13
+    unattained = jnp.any(zero_b != zero_m)
+    holds = p0 & ((cain > tol) | ((cain >= -tol) & unattained))
     d = jnp.sqrt(jnp.maximum(m2, 0.0) / jnp.maximum(b, 1e-300))
     d = jnp.where(jnp.all(jnp.isfinite(d)) & (jnp.max(d) > 0), d / jnp.max(d), jnp.ones(3))
     return holds, cain, d
