@@ -263,7 +263,11 @@ def test_solve_json_stability_object(monkeypatch):
     assert doc["equilibria"]
     delta = doc["params"]["delta"]
     for eq in doc["equilibria"]:
-        st = eq["stability"]
+        st = dict(eq["stability"])
+        names = list(doc["players"])
+        acts0 = np.array([a for v in eq["actions"].values() for a in v])
+        # The certificates' coordinates: the free ones, named by player.
+        assert st.pop("coordinates") == [p for p, a in zip(names, acts0) if a > 1e-9]
         assert set(st) == STABILITY_KEYS
         assert set(st["equal_speeds"]) == {"verdict", "abscissa"}
         for cls in ("player_speeds", "coordinate_speeds"):

@@ -16,6 +16,10 @@ import scipy.linalg
 
 from ._spectral import ZERO_TOL
 
+#: Ratios beyond this either way are taken as 0 or infinity: one block's rows are then
+#: below float64 rounding of the other's, so a root there carries no information.
+RATIO_RANGE = 1e12
+
 
 def _kron_sum(M: np.ndarray) -> np.ndarray:
     eye = np.eye(M.shape[0])
@@ -33,7 +37,8 @@ def critical_ratios(J: np.ndarray, m1: int) -> np.ndarray:
         w = scipy.linalg.eigvals(A, -B)
     w = w[np.isfinite(w)]
     real = w[np.abs(w.imag) <= 1e-7 * np.maximum(1.0, np.abs(w))].real
-    return np.unique(np.round(real[real > 0], 12))
+    keep = (real > 1.0 / RATIO_RANGE) & (real < RATIO_RANGE)
+    return np.unique(real[keep])
 
 
 def _stable_at(J: np.ndarray, m1: int, tau: float) -> bool:
