@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from . import _minors, _spectral
+from . import _minors, _search, _spectral
 from ._evidence import Evidence, Pending, compute
 from ._ratios import probe_ratio, stable_ratio_intervals
 
@@ -189,7 +189,14 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float, ev: Evidence) -> S
 
 
 def _search_fragile(J, blocks, coord_speeds, effort, ev: Evidence) -> SpeedVerdict:
-    speeds, best = ev.get("fragile", tuple(blocks))
+    blocks = tuple(blocks)
+    if 2 <= len(blocks) <= _search.MAX_CORNER_BLOCKS:
+        speeds, best = ev.get("corners", blocks)
+        effort["corner_patterns"] = 3 * ((1 << len(blocks)) - 2)
+        v = _fragile(J, np.asarray(speeds), coord_speeds, "fast/slow corner speeds", effort)
+        if v:
+            return v
+    speeds, best = ev.get("fragile", blocks)
     effort.update({"search": "Adam over log-speeds, 16 starts x 150 steps", "best_scaled_abscissa": float(best)})
     v = _fragile(J, np.asarray(speeds), coord_speeds, "search over log-speeds", effort)
     return v or SpeedVerdict(UNDECIDED, "no certificate found", None, effort)

@@ -45,6 +45,7 @@ KINDS = {
     "lyapunov": lambda J, blocks: _search.lyapunov_weights(J, blocks),
     "lyapunov_candidates": lambda J, blocks: _search.lyapunov_candidates(J, blocks),
     "fragile": lambda J, blocks: _search.destabilising_speeds(J, blocks),
+    "corners": lambda J, blocks: _search.corner_speeds(J, blocks),
     "obstruction": lambda J, blocks: _search.diagonal_obstruction(J),
 }
 

@@ -161,3 +161,25 @@ def lyapunov_candidates(J, blocks):
     D = jnp.diag(1.0 / jnp.maximum(jnp.abs(jnp.diag(J)), 1e-300))
     cands = jnp.stack([eye, X, D])
     return cands / jnp.max(jnp.abs(cands), axis=(1, 2), keepdims=True)
+
+
+#: Most players (or coordinates) for which all fast/slow corner patterns are tried.
+MAX_CORNER_BLOCKS = 12
+
+
+@functools.partial(jax.jit, static_argnames=("blocks",))
+def corner_speeds(J, blocks):
+    """Best of the two-level speed patterns: 1 on a subset of blocks, ``eps`` elsewhere.
+
+    Every proper non-empty subset with ``eps`` in (1e-1, 1e-2, 1e-3); cheap and
+    batched, it catches most destabilising speeds before the gradient search.
+    Returns the best speeds (one per block, max 1) and their scaled abscissa.
+    """
+    k = len(blocks)
+    G = jnp.asarray(_expand(blocks))
+    sets = np.array([[(m >> i) & 1 for i in range(k)] for m in range(1, (1 << k) - 1)], dtype=bool)
+    pats = np.concatenate([np.where(sets, 1.0, eps) for eps in (1e-1, 1e-2, 1e-3)])
+    logk = jnp.log(jnp.asarray(pats))
+    vals = jax.vmap(lambda w: _abscissa_ratio(J, w, G))(logk)
+    i = jnp.argmax(vals)
+    return jnp.asarray(pats)[i], vals[i]
