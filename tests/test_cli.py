@@ -45,16 +45,6 @@ CLOSED_FORM_RTOL = 1e-9
 DEDUP_TOL = 1e-6
 
 
-@pytest.fixture(scope="module", autouse=True)
-def _compile_cache(tmp_path_factory):
-    """Keep the persistent compile cache inside this session's temp dir."""
-    where = tmp_path_factory.getbasetemp() / "equipoise-jax-cache"
-    where.mkdir(exist_ok=True)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setenv("EQUIPOISE_CACHE", str(where))
-        yield where
-
-
 def _run(argv: list[str]) -> tuple[int, str, str]:
     """``main(argv)`` with its exit status, standard output and standard error."""
     out, err = io.StringIO(), io.StringIO()

@@ -21,16 +21,6 @@ from equipoise.cli import main
 FERRIES = Path(__file__).resolve().parents[1] / "models" / "cournot_saltmere_ferries.py"
 
 
-@pytest.fixture(scope="module", autouse=True)
-def _compile_cache(tmp_path_factory):
-    """Keep the persistent compile cache inside this session's temp dir."""
-    where = tmp_path_factory.getbasetemp() / "equipoise-jax-cache"
-    where.mkdir(exist_ok=True)
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setenv("EQUIPOISE_CACHE", str(where))
-        yield where
-
-
 # ---------------------------------------------------------------- helpers
 
 
