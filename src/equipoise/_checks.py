@@ -55,14 +55,18 @@ def _in_user_file(exc: BaseException, source: str | None) -> bool:
 
 
 @contextlib.contextmanager
-def user_code(game, what: str):
-    """Turn a failure inside the user's model code into one :class:`InputError` line."""
+def user_code(game, what: str, any_error: bool = False):
+    """Turn a failure inside the user's model code into one :class:`InputError` line.
+
+    Only tracing errors and errors raised in the model file are converted, unless
+    ``any_error`` (for a direct call of the user's function, where nothing else runs).
+    """
     try:
         yield
     except InputError:
         raise
     except Exception as exc:
-        if not (isinstance(exc, _TRACING_ERRORS) or _in_user_file(exc, game.source)):
+        if not (any_error or isinstance(exc, _TRACING_ERRORS) or _in_user_file(exc, game.source)):
             raise
         loc = user_frame(exc, game.source)
         loc = f" (at {loc})" if loc else ""
@@ -103,17 +107,11 @@ def check_payoffs(game, theta, starts: np.ndarray) -> None:
     """Evaluate the payoffs at the starts; raise :class:`InputError` if unusable."""
     where = _where(game)
     first = game.split(jax.numpy.asarray(starts[0]))
-    try:
+    with user_code(game, "payoffs", any_error=True):
         out = game.payoffs(first, theta)
-    except InputError:
-        raise
-    except Exception as exc:  # the user's code may raise anything
-        loc = user_frame(exc, game.source)
-        loc = f" (at {loc})" if loc else ""
-        raise InputError(f"{where}payoffs raised {type(exc).__name__}: {exc}{loc}") from None
     _check_structure(game, out, "payoffs", [()] * len(game.players))
     if game.foc is not None:
-        with user_code(game, "foc"):
+        with user_code(game, "foc", any_error=True):
             foc_out = game.foc(first, theta)
         _check_structure(game, foc_out, "foc", [(m,) for m in game.sizes])
     batch = game.cached("payoff_batch", lambda: jax.jit(jax.vmap(game.payoff_vector, (0, None))))
