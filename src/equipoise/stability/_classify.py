@@ -29,6 +29,9 @@ MINOR_TOL = 1e-10
 #: Rounding allowance when re-verifying diag(JX) >= 0 for an obstruction X.
 OBSTRUCTION_TOL = 1e-10
 
+#: Up to this many blocks, fast/slow corner speeds are tried before the barrier method.
+CHEAP_CORNER_BLOCKS = 4
+
 ROBUST, FRAGILE, UNDECIDED = "robust", "fragile", "undecided"
 
 
@@ -108,39 +111,81 @@ def lyapunov_top(J: np.ndarray, P: np.ndarray, blocks) -> float | None:
     return float(np.linalg.eigvalsh(0.5 * (Q + Q.T))[-1] / (np.linalg.norm(P) * np.linalg.norm(J)))
 
 
-def obstruction(J: np.ndarray, ev: Evidence) -> dict[str, Any] | None:
-    """A re-verified proof that no diagonal Lyapunov matrix exists, or None."""
-    X, _ = ev.get("obstruction")
-    X = np.asarray(X)
-    X = 0.5 * (X + X.T)
-    diag = np.diag(J @ X)
-    scale = np.linalg.norm(J) * np.trace(X)
-    if np.linalg.eigvalsh(X)[0] < -OBSTRUCTION_TOL * np.trace(X) or np.min(diag) < -OBSTRUCTION_TOL * scale:
-        return None
-    return {"X": X.tolist(), "diag_JX": diag.tolist(),
-            "reason": "X is positive semidefinite and diag(J X) >= 0, so tr((PJ + J^T P) X) >= 0 for every "
-                      "positive diagonal P"}
+def obstruction(J: np.ndarray, ev: Evidence, blocks) -> dict[str, Any] | None:
+    """A re-verified proof that no Lyapunov matrix on the block pattern of ``blocks`` exists, or None.
 
-
-def _robust_lyapunov(J, blocks, diagonal: bool, effort, ev: Evidence) -> SpeedVerdict | None:
+    ``X`` positive semidefinite whose block-diagonal part of ``JX + XJ^T`` is
+    positive semidefinite gives ``tr((PJ + J^T P) X) = tr(P (JX + XJ^T)) >= 0``
+    for every admissible ``P``, which rules out ``PJ + J^T P`` negative definite.
+    """
     blocks = tuple(blocks)
-    best = None
-    for kind in ("lyapunov_candidates", "lyapunov"):  # closed-form candidates first, then the search
-        found = ev.get(kind, blocks)
-        candidates = [found[0]] if kind == "lyapunov" else list(found)
-        for P in candidates:
-            P = 0.5 * (np.asarray(P) + np.asarray(P).T)
-            P[~_spectral.block_mask(blocks)] = 0.0
-            top = lyapunov_top(J, P, blocks)
-            if top is not None and top < -LYAPUNOV_TOL:
-                cert = {"diagonal": np.diag(P).tolist()} if diagonal else {"matrix": P.tolist()}
-                cert["max_eigenvalue"] = top
-                name = "diagonal Lyapunov matrix" if diagonal else "block-diagonal Lyapunov matrix"
-                return SpeedVerdict(ROBUST, name, cert, effort)
-            if top is not None and (best is None or top < best):
-                best = top
-    effort["lyapunov_best"] = best
+    X = np.asarray(ev.get("lyapunov", blocks)[2], dtype=float)
+    if not np.all(np.isfinite(X)):
+        return None
+    X = 0.5 * (X + X.T)
+    S = J @ X + X @ J.T
+    scale = np.linalg.norm(J) * np.trace(X)
+    if np.linalg.eigvalsh(X)[0] < -OBSTRUCTION_TOL * np.trace(X):
+        return None
+    edges = np.cumsum((0,) + blocks)
+    lows = [np.linalg.eigvalsh(S[a:b, a:b])[0] for a, b in zip(edges[:-1], edges[1:])]
+    if min(lows) < -OBSTRUCTION_TOL * scale:
+        return None
+    if all(b == 1 for b in blocks):
+        return {"X": X.tolist(), "diag_JX": np.diag(J @ X).tolist(),
+                "reason": "X is positive semidefinite and diag(J X) >= 0, so tr((PJ + J^T P) X) >= 0 for "
+                          "every positive diagonal P"}
+    return {"X": X.tolist(), "block_min_eigenvalues": [float(v) for v in lows],
+            "reason": "X is positive semidefinite and every diagonal block of J X + X J^T is positive "
+                      "semidefinite, so tr((PJ + J^T P) X) >= 0 for every block-diagonal P >= 0"}
+
+
+def _lyapunov(J, blocks, kind: str, effort, ev: Evidence) -> SpeedVerdict | None:
+    """A re-verified Lyapunov certificate from evidence ``kind``, or None (best value into ``effort``)."""
+    diagonal = all(b == 1 for b in blocks)
+    found = ev.get(kind, blocks)
+    candidates = [found[0]] if kind == "lyapunov" else list(found)
+    for P in candidates:
+        P = 0.5 * (np.asarray(P) + np.asarray(P).T)
+        P[~_spectral.block_mask(blocks)] = 0.0
+        top = lyapunov_top(J, P, blocks)
+        if top is not None and top < -LYAPUNOV_TOL:
+            cert = {"diagonal": np.diag(P).tolist()} if diagonal else {"matrix": P.tolist()}
+            cert["max_eigenvalue"] = top
+            name = "diagonal Lyapunov matrix" if diagonal else "block-diagonal Lyapunov matrix"
+            return SpeedVerdict(ROBUST, name, cert, effort)
+        if top is not None and (effort.get("lyapunov_best") is None or top < effort["lyapunov_best"]):
+            effort["lyapunov_best"] = top
     return None
+
+
+def _certify(J, blocks, coord_speeds, effort, ev: Evidence) -> SpeedVerdict:
+    """Cheapest first: closed-form Lyapunov candidates, fast/slow corner speeds and the
+    barrier method for a Lyapunov matrix (corners first for few blocks), then the gradient
+    search for speeds; else undecided, with the barrier method's proof that no Lyapunov
+    matrix exists when it re-verifies."""
+    blocks = tuple(blocks)
+
+    def corners():
+        if 2 <= len(blocks) <= _search.MAX_CORNER_BLOCKS:
+            speeds, _ = ev.get("corners", blocks)
+            effort["corner_patterns"] = 3 * ((1 << len(blocks)) - 2)
+            return _fragile(J, np.asarray(speeds), coord_speeds, "fast/slow corner speeds", effort)
+        return None
+
+    # Corner patterns grow as 2^blocks: cheaper than the barrier method only for few blocks.
+    steps = [lambda: _lyapunov(J, blocks, "lyapunov_candidates", effort, ev),
+             lambda: _lyapunov(J, blocks, "lyapunov", effort, ev)]
+    steps.insert(1 if len(blocks) <= CHEAP_CORNER_BLOCKS else 2, corners)
+    for step in steps:
+        v = step()
+        if v:
+            return v
+    speeds, best = ev.get("fragile", blocks)
+    effort.update({"search": "Adam over log-speeds, 16 starts x 150 steps", "best_scaled_abscissa": float(best)})
+    v = _fragile(J, np.asarray(speeds), coord_speeds, "search over log-speeds", effort)
+    return v or SpeedVerdict(UNDECIDED, "no certificate found", None, effort,
+                             no_lyapunov=obstruction(J, ev, blocks))
 
 
 # ---------------------------------------------------------------- speed classes
@@ -174,32 +219,12 @@ def _coordinate_verdict(J: np.ndarray, equal_abscissa: float, ev: Evidence) -> S
         name = "2x2 entrywise criterion" if n == 2 else "3x3 Routh-Hurwitz / Cauchy-Schwarz criterion"
         if bool(holds):
             return SpeedVerdict(ROBUST, "exact " + name, {"criterion": name, "margin": float(margin)},
-                                no_lyapunov=obstruction(J, ev) if n == 3 else None)
+                                no_lyapunov=obstruction(J, ev, (1,) * n) if n == 3 else None)
         if float(margin) < -MINOR_TOL:
             v = _fragile(J, np.asarray(speeds), ident, "exact " + name, effort)
             if v:
                 return v
-    v = _robust_lyapunov(J, (1,) * n, True, effort, ev)
-    if v:
-        return v
-    v = _search_fragile(J, (1,) * n, ident, effort, ev)
-    if v.verdict == FRAGILE:  # a destabilising D already rules out any Lyapunov matrix
-        return v
-    return SpeedVerdict(v.verdict, v.method, v.certificate, v.effort, v.stable_ratios, obstruction(J, ev))
-
-
-def _search_fragile(J, blocks, coord_speeds, effort, ev: Evidence) -> SpeedVerdict:
-    blocks = tuple(blocks)
-    if 2 <= len(blocks) <= _search.MAX_CORNER_BLOCKS:
-        speeds, best = ev.get("corners", blocks)
-        effort["corner_patterns"] = 3 * ((1 << len(blocks)) - 2)
-        v = _fragile(J, np.asarray(speeds), coord_speeds, "fast/slow corner speeds", effort)
-        if v:
-            return v
-    speeds, best = ev.get("fragile", blocks)
-    effort.update({"search": "Adam over log-speeds, 16 starts x 150 steps", "best_scaled_abscissa": float(best)})
-    v = _fragile(J, np.asarray(speeds), coord_speeds, "search over log-speeds", effort)
-    return v or SpeedVerdict(UNDECIDED, "no certificate found", None, effort)
+    return _certify(J, (1,) * n, ident, effort, ev)
 
 
 def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: SpeedVerdict,
@@ -231,11 +256,7 @@ def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: Sp
     if coordinate.verdict == ROBUST:
         return SpeedVerdict(ROBUST, "implied by per-coordinate robustness (" + coordinate.method + ")",
                             coordinate.certificate)
-    effort: dict[str, Any] = {}
-    v = _robust_lyapunov(J, blocks, False, effort, ev)
-    if v:
-        return v
-    return _search_fragile(J, blocks, expand, effort, ev)
+    return _certify(J, blocks, expand, {}, ev)
 
 
 def _unstable_probes(ratios) -> list[float]:

@@ -3,8 +3,8 @@
 Decisions ask an :class:`Evidence` for what they need (``get(kind, blocks)``).
 For a single matrix the answer is computed at once by a jitted function. In a
 batch, a missing answer raises :class:`Pending` and is recorded; the batch
-driver computes all recorded requests of one kind together (``vmap``, padded to
-a power of two so few shapes compile) and runs the waiting decisions again.
+driver computes all recorded requests of one kind together (``vmap``, in chunks
+of fixed size or padded to a power of two, so few shapes compile) and runs the waiting decisions again.
 Expensive searches are therefore paid for only by the matrices that need them.
 """
 
@@ -16,7 +16,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
-from . import _exact, _minors, _search, _spectral
+from . import _exact, _lmi, _minors, _search, _spectral
 
 
 class Pending(Exception):
@@ -42,11 +42,11 @@ KINDS = {
     "best_response": lambda J, blocks: _spectral.best_response_radius(J, blocks),
     "minors": _minors_fn,
     "exact": _exact_fn,
-    "lyapunov": lambda J, blocks: _search.lyapunov_weights(J, blocks),
+    "lyapunov": lambda J, blocks: _lmi.lyapunov_lmi(
+        J, blocks, "diagonal" if all(b == 1 for b in blocks) else "block"),
     "lyapunov_candidates": lambda J, blocks: _search.lyapunov_candidates(J, blocks),
     "fragile": lambda J, blocks: _search.destabilising_speeds(J, blocks),
     "corners": lambda J, blocks: _search.corner_speeds(J, blocks),
-    "obstruction": lambda J, blocks: _search.diagonal_obstruction(J),
 }
 
 
@@ -59,14 +59,22 @@ def _to_numpy(value):
     return jax.tree.map(np.asarray, value)
 
 
+#: Batches are cut into chunks of this many matrices; a last, smaller chunk is padded to a power of two.
+CHUNK = 256
+
+
 def compute(kind: str, blocks: tuple[int, ...], Js: np.ndarray) -> list:
-    """Evidence ``kind`` for each matrix of the stack ``Js`` (one compile per padded size)."""
-    count = Js.shape[0]
-    size = 1 << max(0, (count - 1).bit_length())
-    padded = np.concatenate([Js, np.repeat(Js[:1], size - count, axis=0)]) if size > count else Js
-    out = _to_numpy(_batched(kind, blocks)(jnp.asarray(padded)))
-    leaves, tree = jax.tree.flatten(out)
-    return [jax.tree.unflatten(tree, [leaf[i] for leaf in leaves]) for i in range(count)]
+    """Evidence ``kind`` for each matrix of the stack ``Js`` (few compiled shapes: ``CHUNK`` and powers of two)."""
+    out = []
+    for start in range(0, Js.shape[0], CHUNK):
+        part = Js[start:start + CHUNK]
+        count = part.shape[0]
+        size = 1 << max(0, (count - 1).bit_length())
+        if size > count:
+            part = np.concatenate([part, np.repeat(part[:1], size - count, axis=0)])
+        leaves, tree = jax.tree.flatten(_to_numpy(_batched(kind, blocks)(jnp.asarray(part))))
+        out += [jax.tree.unflatten(tree, [leaf[i] for leaf in leaves]) for i in range(count)]
+    return out
 
 
 class Evidence:

@@ -18,7 +18,7 @@ from typing import Any
 import jax
 import numpy as np
 
-from . import _search
+from . import _lmi
 
 #: Jacobians that differ by less than this (relative) count as constant.
 CONSTANT_TOL = 1e-9
@@ -37,8 +37,9 @@ def rosen_certificate(J, blocks) -> dict[str, Any] | None:
     """Re-verified weights ``r`` (max 1) for Rosen's condition on constant ``J``, or None."""
     J = np.asarray(J, dtype=float)
     blocks = tuple(int(b) for b in blocks)
-    r, _ = _search.player_weights(jax.numpy.asarray(J), blocks)
-    r = np.asarray(r)
+    R, _, _ = _lmi.lyapunov_lmi(jax.numpy.asarray(J), blocks, "player")
+    edges = np.cumsum((0,) + blocks)[:-1]
+    r = np.asarray(R).diagonal()[edges]
     if not (np.all(np.isfinite(r)) and np.all(r > 0)):
         return None
     R = np.diag(np.repeat(r, blocks))

@@ -1,15 +1,11 @@
-r"""Optimisation searches for certificates (pure JAX with optax; ``jit``/``vmap`` apply).
+r"""Searches for destabilising speeds and cheap Lyapunov candidates (pure JAX; ``jit``/``vmap`` apply).
 
 * :func:`destabilising_speeds` maximises the scale-free spectral abscissa
   :math:`\max \mathrm{Re}\,\lambda(KJ) / \|KJ\|_F` over log-speeds from several
-  starts (the problem is not convex).
-* :func:`lyapunov_weights`, :func:`player_weights` and :func:`diagonal_obstruction`
-  are convex problems over a normalised cone (trace one), parametrised by a
-  softmax (diagonals) or a Gram matrix ``L L^T`` (matrices). Both maps have a
-  full-rank derivative at interior points (``L`` invertible), so a stationary
-  point there of the composed objective is a global optimum of the convex one,
-  and a single start suffices. The objectives are not
-  smooth (a top eigenvalue, a minimum), so the step size decays over the run.
+  starts with Adam (optax); the problem is not convex.
+* :func:`corner_speeds` tries every two-level (fast/slow) speed pattern.
+* :func:`lyapunov_candidates` gives closed-form weight matrices to try before
+  the barrier method of :mod:`._lmi`.
 
 Every search only proposes; the caller re-verifies each certificate in float64.
 """
@@ -23,15 +19,16 @@ import jax.numpy as jnp
 import numpy as np
 import optax
 
+
 def _expand(blocks) -> np.ndarray:
     """``(n, k)`` 0/1 matrix giving each coordinate its player's speed."""
     owner = np.repeat(np.arange(len(blocks)), blocks)
     return (owner[:, None] == np.arange(len(blocks))[None, :]).astype(float)
 
 
-def _minimise(objective, x0s, steps: int, rate: float, decay: bool = False):
+def _minimise(objective, x0s, steps: int, rate: float):
     """Adam from each start in ``x0s`` (vmapped); the best value seen and where."""
-    opt = optax.adam(optax.cosine_decay_schedule(rate, steps, alpha=1e-3) if decay else rate)
+    opt = optax.adam(rate)
 
     def run(x):
         def step(carry, _):
@@ -67,80 +64,6 @@ def destabilising_speeds(J, blocks, starts=16, steps=150, seed=0, spread=3.0):
     w0 = spread * jax.random.normal(jax.random.PRNGKey(seed), (starts, len(blocks)))
     w, val = _minimise(lambda w: -_abscissa_ratio(J, w, G), w0.at[0].set(0.0), steps, 0.1)
     return jnp.exp(w - jnp.max(w)), -val
-
-
-def _top(S):
-    return jnp.linalg.eigvalsh(0.5 * (S + S.T))[-1]
-
-
-def _gram(L, mask):
-    """``L L^T / tr(L L^T)`` with ``L`` lower triangular on the block pattern ``mask``."""
-    L = jnp.where(mask, jnp.tril(L), 0.0)
-    P = L @ L.T
-    return P / jnp.trace(P)
-
-
-def _unit(J):
-    return J / jnp.maximum(jnp.linalg.norm(J), 1e-300)
-
-
-@functools.partial(jax.jit, static_argnames=("blocks", "steps"))
-def lyapunov_weights(J, blocks, steps=400):
-    """Best ``P`` found (block-diagonal per ``blocks``; all ones: positive diagonal).
-
-    Minimises the top eigenvalue of ``PJ + J^T P`` over ``P`` of trace one.
-    Returns ``P`` (largest entry 1) and the scaled top eigenvalue.
-    """
-    Jn = _unit(J)
-    n = J.shape[0]
-    owner = np.repeat(np.arange(len(blocks)), blocks)
-    mask = jnp.asarray(owner[:, None] == owner[None, :])
-    if all(b == 1 for b in blocks):
-        def matrix(w):
-            return jnp.diag(jax.nn.softmax(w))
-        x0 = jnp.zeros((1, n))
-    else:
-        def matrix(L):
-            return _gram(L, mask)
-        x0 = jnp.eye(n)[None]
-    x, val = _minimise(lambda x: _top(matrix(x) @ Jn + Jn.T @ matrix(x)), x0, steps, 0.1, decay=True)
-    P = matrix(x)
-    return P / jnp.max(jnp.abs(P)), val
-
-
-@functools.partial(jax.jit, static_argnames=("blocks", "steps"))
-def player_weights(J, blocks, steps=400):
-    """Best weights ``r`` (one per player, max 1) for ``R = blockdiag(r_i I)``, and the scaled top eigenvalue."""
-    Jn = _unit(J)
-    G = jnp.asarray(_expand(blocks))
-
-    def matrix(w):
-        return jnp.diag(G @ jax.nn.softmax(w))
-
-    w, val = _minimise(lambda w: _top(matrix(w) @ Jn + Jn.T @ matrix(w)),
-                       jnp.zeros((1, len(blocks))), steps, 0.1, decay=True)
-    r = jax.nn.softmax(w)
-    return r / jnp.max(r), val
-
-
-@functools.partial(jax.jit, static_argnames=("steps",))
-def diagonal_obstruction(J, steps=400):
-    r"""Search for :math:`X \succeq 0`, :math:`\mathrm{tr}\,X = 1`, maximising :math:`\min_i (JX)_{ii}`.
-
-    A result with :math:`\min_i (JX)_{ii} \ge 0` proves that no positive
-    diagonal :math:`P` makes :math:`PJ + J^T P` negative definite, since
-    :math:`\mathrm{tr}((PJ + J^T P) X) = 2 \sum_i p_i (JX)_{ii}`.
-    Returns ``X`` and ``min_i (JX)_ii / |J|_F``.
-    """
-    Jn = _unit(J)
-    n = J.shape[0]
-    full = jnp.ones((n, n), dtype=bool)
-
-    def objective(L):
-        return -jnp.min(jnp.diag(Jn @ _gram(L, full)))
-
-    L, val = _minimise(objective, jnp.eye(n)[None], steps, 0.1, decay=True)
-    return _gram(L, full), -val
 
 
 @functools.partial(jax.jit, static_argnames=("blocks",))
