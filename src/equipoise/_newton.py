@@ -141,15 +141,82 @@ def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100)
     """
     if theta is None:
         theta = game.theta()
-    lower, upper = game.lower, game.upper
     x0 = jnp.asarray(x0, dtype=float)
 
     def residual_fn(x):
-        return complementarity(x, game.solver_field(x, theta), lower, upper)
+        return complementarity(x, game.solver_field(x, theta), game.lower, game.upper)
 
-    phi0 = residual_fn(x0)
+    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps))
+
+
+def deflated_solve(game, x0, theta, roots, active, scale, *, power=2.0, shift=1.0,
+                   ftol=1e-10, xtol=1e-10, max_steps=100):
+    r"""Newton on the deflated system :math:`M(x) \Phi(x) = 0` (see :func:`newton_solve`).
+
+    .. math:: M(x) = \prod_{k \,\text{active}} \left(\|(x - r_k) / w\|_2^{-p} + s\right)
+
+    with the known roots :math:`r_k` (rows of ``roots`` where ``active``),
+    widths :math:`w` = ``scale`` (distances are unit-free), ``p`` = ``power``
+    and ``s`` = ``shift``. :math:`M \ge s^K`, so with ``shift >= 1`` a small
+    deflated residual means a small true one; near a known root
+    :math:`M \to \infty` and Newton is pushed away from it, so the same
+    start can converge to a new root.
+
+    Reference: Farrell, Birkisson & Funke (2015), "Deflation techniques for
+    finding distinct solutions of nonlinear partial differential equations",
+    SIAM J. Sci. Comput. 37(4).
+
+    Parameters
+    ----------
+    roots : array (R, n)
+        Known roots (a fixed-size buffer, so one compilation serves many rounds).
+    active : bool array (R,)
+        Which rows of ``roots`` are in use.
+    scale : array (n,)
+        Positive widths for the distances.
+
+    Returns
+    -------
+    RootResult
+        Its residual is the true (undeflated) natural residual.
+
+    Notes
+    -----
+    Pure JAX: ``jax.jit`` and ``jax.vmap`` apply.
+    """
+    x0 = jnp.asarray(x0, dtype=float)
+    roots = jnp.asarray(roots, dtype=float)
+    active = jnp.asarray(active, dtype=bool)
+    scale = jnp.asarray(scale, dtype=float)
+
+    def multiplier(x):
+        d2 = jnp.sum(((x[None, :] - roots) / scale) ** 2, axis=1)
+        factor = d2 ** (-0.5 * power) + shift
+        return jnp.prod(jnp.where(active, factor, 1.0))
+
+    def residual_fn(x):
+        return multiplier(x) * complementarity(x, game.solver_field(x, theta), game.lower, game.upper)
+
+    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps))
+
+
+def _ftol_abs(game, x0, theta, ftol):
     scale = 1.0 + jnp.max(jnp.abs(game.solver_field(x0, theta)))
-    ftol_abs = ftol * jnp.where(jnp.isfinite(scale), scale, 1.0)
+    return ftol * jnp.where(jnp.isfinite(scale), scale, 1.0)
+
+
+def _finish(game, theta, out: _Loop) -> RootResult:
+    # Semismooth Newton may approach a corner from outside; actions never leave the box.
+    lower, upper = game.lower, game.upper
+    x = jnp.clip(out.x, jnp.asarray(lower), jnp.asarray(upper))
+    F = game.pseudo_gradient(x, theta)
+    res = jnp.max(jnp.abs(natural_residual(x, F, lower, upper)))
+    return RootResult(x, out.status, out.step, res)
+
+
+def _newton_loop(residual_fn, x0, ftol_abs, xtol, max_steps) -> _Loop:
+    """The globalised Newton iteration on ``residual_fn`` from ``x0`` (a ``lax.while_loop``)."""
+    phi0 = residual_fn(x0)
 
     def merit(phi):
         v = 0.5 * jnp.sum(phi * phi)
@@ -159,11 +226,12 @@ def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100)
         jac = jax.jacfwd(residual_fn)(s.x)
         phi = s.phi
         grad = jac.T @ phi
-        d_newton = jnp.linalg.solve(jac, -phi)
-        newton_ok = jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
         mu = jnp.linalg.norm(phi)
         lm = jac.T @ jac + mu * jnp.eye(x0.shape[0])
-        d_lm = jnp.linalg.solve(lm, -grad)
+        # Newton and Levenberg-Marquardt directions in one batched LAPACK call (DEVELOPERS.md:
+        # independent LAPACK calls in one graph can deadlock jaxlib's CPU thread pool).
+        d_newton, d_lm = jnp.linalg.solve(jnp.stack([jac, lm]), jnp.stack([-phi, -grad])[..., None])[..., 0]
+        newton_ok = jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
         d = jnp.where(newton_ok, d_newton, d_lm)
         psi = merit(phi)
         slope = grad @ d
@@ -204,8 +272,4 @@ def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100)
                  ~jnp.all(jnp.isfinite(phi0)))
     init = init._replace(status=jnp.where(init.done, Status.nonfinite.code, init.status))
     out = lax.while_loop(cond, body, init)
-    # Semismooth Newton may approach a corner from outside; actions never leave the box.
-    x = jnp.clip(out.x, jnp.asarray(lower), jnp.asarray(upper))
-    F = game.pseudo_gradient(x, theta)
-    res = jnp.max(jnp.abs(natural_residual(x, F, lower, upper)))
-    return RootResult(x, out.status, out.step, res)
+    return out

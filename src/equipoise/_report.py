@@ -83,6 +83,11 @@ def solution_table(solution, game, model: str) -> str:
         f"{len(solution.equilibria)} distinct first-order point(s) from {st['starts']} starts "
         f"({st['converged']} converged) in {st['seconds']:.1f} s",
     ]
+    if "deflation" in st:
+        d = st["deflation"]
+        lines.append(f"all-equilibria search: {d['rounds']} deflation round(s), {d['newton_runs']} Newton runs, "
+                     f"new per round {d['new_per_round']}"
+                     + ("; the last round found nothing new" if d["exhausted"] else "; stopped at the round limit"))
     if not solution.equilibria:
         lines.append(f"no equilibrium: {solution.message}")
     width = max(len("player"), *(len(p) for p in game.players))

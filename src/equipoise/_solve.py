@@ -19,7 +19,7 @@ import numpy as np
 
 from ._checks import check_payoffs, user_code
 from ._errors import InputError
-from ._newton import newton_solve
+from ._newton import deflated_solve, newton_solve
 from ._sampling import unit_sample
 from ._status import Nash, Status
 from ._verify import verify
@@ -164,7 +164,8 @@ def distinct(points: np.ndarray, residuals: np.ndarray, tol: float) -> list[tupl
 
 def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, seed: int = 0,
           ftol: float = 1e-10, xtol: float = 1e-10, max_steps: int = 100,
-          dedup_tol: float = 1e-6, deviation_starts: int = 16, stability: bool = True) -> Solution:
+          dedup_tol: float = 1e-6, deviation_starts: int = 16, stability: bool = True,
+          all_equilibria: bool = False, deflation_rounds: int = 8) -> Solution:
     """Find and verify the equilibria of ``game`` reachable from ``starts`` starts.
 
     Parameters
@@ -185,6 +186,16 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         Starts per player of the global deviation check, see :func:`verify`.
     stability : bool
         Attach stability labels to each equilibrium (default True).
+    all_equilibria : bool
+        Search for every equilibrium: after the multistart, rerun Newton from
+        the same starts on the deflated system (:func:`deflated_solve`), in
+        rounds, each deflating every root found so far, until a round finds
+        nothing new or ``deflation_rounds`` rounds have run. The effort is
+        reported in ``stats["deflation"]``. No method can promise that every
+        equilibrium of a nonlinear game was found; a last round that found
+        nothing new is the evidence offered.
+    deflation_rounds : int
+        Most deflation rounds (with ``all_equilibria``).
 
     Returns
     -------
@@ -215,12 +226,21 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     with user_code(game, "payoffs"):
         roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
     ok = roots.status == Status.success.code
+    points, residuals = roots.x[ok], roots.residual[ok]
+    deflation = None
+    if all_equilibria:
+        if isinstance(deflation_rounds, bool) or not isinstance(deflation_rounds, (int, np.integer)) \
+                or deflation_rounds < 1:
+            raise InputError(f"deflation_rounds: expected a positive whole number, got {deflation_rounds!r}")
+        extra, extra_res, deflation = _deflate(game, theta, x0, points, residuals, int(deflation_rounds),
+                                               dedup_tol, dict(ftol=ftol, xtol=xtol, max_steps=max_steps))
+        points, residuals = np.concatenate([points, extra]), np.concatenate([residuals, extra_res])
 
     check = game.cached("verify", lambda: jax.jit(lambda x, th, u: verify(game, x, th, unit_starts=u)))
     unit = jnp.asarray(unit_sample(int(deviation_starts), game.n, int(seed) + 1))
     payoff_fn = game.cached("payoff", lambda: jax.jit(game.payoff_vector))
     equilibria = []
-    for x, count in distinct(roots.x[ok], roots.residual[ok], dedup_tol):
+    for x, count in distinct(points, residuals, dedup_tol):
         v = jax.tree.map(np.asarray, check(jnp.asarray(x), theta, unit))
         u = np.asarray(payoff_fn(jnp.asarray(x), theta))
         equilibria.append(Equilibrium(
@@ -245,6 +265,8 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         "newton_steps_max": int(np.max(roots.steps)),
         "seconds": time.perf_counter() - t0,
     }
+    if deflation is not None:
+        stats["deflation"] = deflation
     rosen = _rosen(game, theta, x0) if stability else None
     stats["seconds"] = time.perf_counter() - t0
     status = Status.success if equilibria else Status.no_equilibrium
@@ -260,3 +282,91 @@ def _rosen(game, theta, x0: np.ndarray) -> dict[str, Any]:
     if cert is None:
         return {"quadratic": True, "weights": None, "max_eigenvalue": None}
     return {"quadratic": True, **cert}
+
+
+#: Deflation exponent p and shift s (see :func:`deflated_solve`): a milder exponent and a
+#: larger shift than the usual (2, 1) keep the deflated merit free of spurious minima far from
+#: the known roots on the bounded games in the tests.
+DEFLATION_POWER, DEFLATION_SHIFT = 1.0, 2.0
+
+
+def _deflate(game, theta, x0: np.ndarray, points: np.ndarray, residuals: np.ndarray, rounds: int,
+             dedup_tol: float, newton: dict) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
+    """Deflation rounds from the starts ``x0``; the new converged points, their residuals, the effort."""
+    with user_code(game, "search_box"):
+        lo, hi = (np.asarray(v) for v in game.region(theta))
+    widths = np.maximum(hi - lo, 1e-12 * (1.0 + np.abs(lo) + np.abs(hi)))
+    known = [p for p, _ in distinct(points, residuals, dedup_tol)]
+    new_points, new_res, found_per_round, converged_per_round = [], [], [], []
+    runs = 0
+    for _ in range(rounds):
+        capacity = max(8, 1 << max(0, (len(known) - 1).bit_length()))  # few buffer sizes, few compilations
+        buffer = np.zeros((capacity, game.n))
+        active = np.zeros(capacity, dtype=bool)
+        if known:
+            buffer[: len(known)] = np.asarray(known)
+            active[: len(known)] = True
+        run = game.cached(
+            ("deflated_batch", capacity, tuple(sorted(newton.items()))),
+            lambda: jax.jit(jax.vmap(
+                lambda x, th, r, a, w: deflated_solve(game, x, th, r, a, w, power=DEFLATION_POWER,
+                                                      shift=DEFLATION_SHIFT, **newton),
+                in_axes=(0, None, None, None, None))),
+        )
+        # The same starts, and every known root nudged off itself (where deflation repels).
+        starts = np.concatenate([x0, _nudged(np.asarray(known), widths, lo, hi)]) if known else x0
+        used = starts.shape[0]
+        # Pad to a size fixed by the buffer capacity, so rounds reuse one compilation.
+        size = x0.shape[0] + capacity * _nudges_per_root(game.n)
+        starts = np.concatenate([starts, np.repeat(x0[:1], size - used, axis=0)])
+        with user_code(game, "payoffs"):
+            out = jax.tree.map(np.asarray, run(jnp.asarray(starts), theta, jnp.asarray(buffer),
+                                               jnp.asarray(active), jnp.asarray(widths)))
+        out = jax.tree.map(lambda a: a[:used], out)
+        runs += used
+        ok = out.status == Status.success.code
+        converged_per_round.append(int(ok.sum()))
+        fresh = 0
+        for p, _ in distinct(out.x[ok], out.residual[ok], dedup_tol):
+            if not any(_same(p, q, dedup_tol) for q in known):
+                known.append(p)
+                fresh += 1
+        new_points.append(out.x[ok])
+        new_res.append(out.residual[ok])
+        found_per_round.append(fresh)
+        if fresh == 0:
+            break
+    stats = {
+        "rounds": len(found_per_round),
+        "new_per_round": found_per_round,
+        "converged_per_round": converged_per_round,
+        "newton_runs": runs,
+        "exhausted": found_per_round[-1] == 0,
+        "method": f"deflation M(x) = prod_k (|(x - r_k)/w|^-{DEFLATION_POWER:g} + {DEFLATION_SHIFT:g}) "
+                  "from the same starts and from each known root nudged by 5 % of the search box",
+    }
+    empty = np.zeros((0, game.n))
+    return (np.concatenate(new_points) if new_points else empty,
+            np.concatenate(new_res) if new_res else np.zeros(0), stats)
+
+
+#: Up to this many actions, each known root is also nudged along every axis.
+NUDGE_AXES_UP_TO = 8
+
+
+def _nudges_per_root(n: int) -> int:
+    return 4 + (2 * n if n <= NUDGE_AXES_UP_TO else 0)
+
+
+def _nudged(roots: np.ndarray, widths: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Starts 5 % of the search box away from each root, along the diagonals +-(1, -1, 1, ...)
+    and +-(1, 1, ...) and, for few actions, +-each axis; kept inside the box."""
+    n = roots.shape[1]
+    pattern = np.where(np.arange(n) % 2 == 0, 1.0, -1.0)
+    steps = [pattern, -pattern, np.ones(n), -np.ones(n)]
+    if n <= NUDGE_AXES_UP_TO:
+        steps += list(np.eye(n)) + list(-np.eye(n))
+    steps = np.stack(steps)
+    assert steps.shape[0] == _nudges_per_root(n)
+    out = (roots[:, None, :] + 0.05 * widths * steps[None]).reshape(-1, n)
+    return np.clip(out, np.minimum(lo, roots.min(axis=0)), np.maximum(hi, roots.max(axis=0)))

@@ -61,7 +61,7 @@ def _run_solve(game, model: str, args) -> int:
     from ._solve import solve
 
     params = _parse_sets(args.set or [])
-    solution = solve(game, params, starts=args.starts, seed=args.seed)
+    solution = solve(game, params, starts=args.starts, seed=args.seed, all_equilibria=args.all)
     if args.json:
         json.dump(_report.solution_dict(solution, game, model), sys.stdout, indent=2)
         sys.stdout.write("\n")
@@ -106,6 +106,8 @@ def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
                        help="override a parameter; VALUE is a number or a JSON list (repeatable)")
     p.add_argument("--starts", type=int, default=64, help="number of starting points (default 64)")
     p.add_argument("--seed", type=int, default=0, help="seed of the starting-point sample (default 0)")
+    p.add_argument("--all", action="store_true",
+                   help="search for every equilibrium: deflation rounds after the multistart")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
 
