@@ -11,7 +11,10 @@ import equipoise.families
 
 # The agreed public API. A change here is an API change: update on purpose.
 PUBLIC = {
+    "Branch",
+    "BranchPoint",
     "Equilibrium",
+    "Event",
     "Game",
     "InputError",
     "Nash",
@@ -25,6 +28,7 @@ PUBLIC = {
     "logit_bertrand",
     "newton_solve",
     "solve",
+    "trace",
     "verify",
 }
 

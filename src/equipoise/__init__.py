@@ -8,6 +8,7 @@ import jax as _jax
 
 _jax.config.update("jax_enable_x64", True)
 
+from ._continuation import Branch, BranchPoint, Event, trace  # noqa: E402
 from ._errors import InputError  # noqa: E402
 from ._game import Game  # noqa: E402
 from ._loader import load_game  # noqa: E402
@@ -20,6 +21,9 @@ from .families import cournot, linear_bertrand, logit_bertrand  # noqa: E402
 __version__ = "0.1.0"
 
 __all__ = [
+    "Branch",
+    "BranchPoint",
+    "Event",
     "Equilibrium",
     "Game",
     "InputError",
@@ -34,5 +38,6 @@ __all__ = [
     "logit_bertrand",
     "newton_solve",
     "solve",
+    "trace",
     "verify",
 ]

@@ -1,0 +1,100 @@
+"""Following equilibria along a parameter path: folds, bounds and speed verdicts, against closed forms."""
+
+import numpy as np
+import pytest
+
+import equipoise
+from equipoise import Game, InputError, trace
+
+
+def _coordination():
+    # u_i = s x_i + x_i x_j - x_i^4 / 12: symmetric equilibria solve s + x - x^3 / 3 = 0, so
+    # s = x^3 / 3 - x, whose turning points (ds/dx = x^2 - 1 = 0) are x = -1, s = 2/3 and
+    # x = 1, s = -2/3 (elementary calculus).
+    def payoffs(x, th):
+        a, b = x["a"][0], x["b"][0]
+        return {"a": th["s"] * a + a * b - a ** 4 / 12, "b": th["s"] * b + a * b - b ** 4 / 12}
+
+    return Game({"a": 1, "b": 1}, payoffs, params={"s": -1.0}, search_box={"a": (-3.0, 3.0), "b": (-3.0, 3.0)})
+
+
+def test_branch_passes_both_folds_where_the_closed_form_puts_them():
+    game = _coordination()
+    sol = equipoise.solve(game, {"s": -1.0}, stability=False)
+    assert len(sol.equilibria) == 1
+    br = trace(game, "s", -1.0, 1.0, sol.equilibria[0].x, stability=False)
+    assert br.status == "reached_end"
+    folds = [e for e in br.events if e.kind == "fold"]
+    assert [round(e.param, 7) for e in folds] == [round(2 / 3, 7), round(-2 / 3, 7)]
+    np.testing.assert_allclose(folds[0].x, [-1.0, -1.0], atol=1e-4)
+    np.testing.assert_allclose(folds[1].x, [1.0, 1.0], atol=1e-4)
+    # End point: the only equilibrium at s = 1 is the large root of x^3/3 - x - 1 = 0 (numpy roots).
+    root = max(r.real for r in np.roots([1 / 3, 0.0, -1.0, -1.0]) if abs(r.imag) < 1e-12)
+    np.testing.assert_allclose(br.points[-1].x, [root, root], atol=1e-9)
+    end = equipoise.solve(game, {"s": 1.0}, stability=False)
+    np.testing.assert_allclose(br.points[-1].x, end.equilibria[-1].x, atol=1e-8)
+
+
+def test_cournot_output_reaches_zero_at_the_closed_form_cost():
+    # Linear Cournot duopoly (common practice): q_1 = (a - 2 c_1 + c_2) / (3 b), zero at
+    # c_1 = (a + c_2) / 2 = 55 for a = 100, c_2 = 10; beyond it firm 2 is a monopolist, q_2 = 45.
+    game = equipoise.cournot(a=100.0, b=1.0, costs=[10.0, 10.0])
+    sol = equipoise.solve(game, stability=False)
+    br = trace(game, "c", 10.0, 80.0, sol.equilibria[0].x, index=0, stability=False)
+    assert br.status == "reached_end"
+    (ev,) = [e for e in br.events if e.kind == "bound"]
+    assert abs(ev.param - 55.0) < 1e-6
+    assert ev.detail["coordinate"] == "firm1" and ev.detail["action"] == "reaches"
+    np.testing.assert_allclose(br.points[-1].x, [0.0, 45.0], atol=1e-9)
+    end = equipoise.solve(game, {"c": [80.0, 10.0]}, stability=False)
+    np.testing.assert_allclose(br.points[-1].x, end.equilibria[0].x, atol=1e-8)
+
+
+def _speed_game():
+    # Quadratic game with Jacobian J(s) = [[-1, .5, 1.9 s], [.5, -1, -.9 s], [.3 s, -1.8 s, -1]]:
+    # player "p" has two actions, player "r" one.
+    def payoffs(x, th):
+        (p1, p2), (r,) = x["p"], x["r"]
+        s = th["s"]
+        up = -p1 ** 2 / 2 - p2 ** 2 / 2 + 0.5 * p1 * p2 + s * (1.9 * p1 - 0.9 * p2) * r + p1
+        ur = -r ** 2 / 2 + s * (0.3 * p1 - 1.8 * p2) * r + r
+        return {"p": up, "r": ur}
+
+    return Game({"p": 2, "r": 1}, payoffs, params={"s": 0.0}, search_box={"p": (-5.0, 5.0), "r": (-5.0, 5.0)})
+
+
+def _jacobian(s):
+    return np.array([[-1, 0.5, 1.9 * s], [0.5, -1, -0.9 * s], [0.3 * s, -1.8 * s, -1]])
+
+
+def test_speed_verdict_event_matches_an_eigenvalue_scan():
+    game = _speed_game()
+    sol = equipoise.solve(game, {"s": 0.0}, starts=4, stability=False)
+    br = trace(game, "s", 0.0, 1.0, sol.equilibria[0].x)
+    assert br.status == "reached_end"
+    assert br.points[0].stability.player_speeds.verdict == "robust"
+    assert br.points[-1].stability.player_speeds.verdict == "fragile"
+    events = [e for e in br.events if e.kind == "speed_verdict"
+              and e.detail["before"]["player_speeds"] != e.detail["after"]["player_speeds"]]
+    assert events
+    s_event = events[0].param
+    # Independent check: eigenvalues of diag(1, 1, k) J(s) over a fine grid of s and k.
+    ks = np.exp(np.linspace(-10, 10, 801))
+    grid = np.linspace(0.0, 1.0, 1001)
+    unstable = [max(np.max(np.linalg.eigvals(np.diag([1, 1, k]) @ _jacobian(s)).real) for k in ks) > 0
+                for s in grid]
+    first = grid[int(np.argmax(unstable))]
+    assert abs(s_event - first) <= 2e-3
+
+
+def test_bad_parameter_choices_are_input_errors():
+    game = equipoise.cournot(a=100.0, b=1.0, costs=[10.0, 10.0])
+    x = equipoise.solve(game, stability=False).equilibria[0].x
+    with pytest.raises(InputError, match="not a parameter"):
+        trace(game, "zeta", 0.0, 1.0, x)
+    with pytest.raises(InputError, match="give an entry"):
+        trace(game, "c", 0.0, 1.0, x)
+    with pytest.raises(InputError, match="expected an index"):
+        trace(game, "c", 0.0, 1.0, x, index=5)
+    with pytest.raises(InputError, match="not an equilibrium"):
+        trace(game, "c", 10.0, 20.0, x + 5.0, index=0)
