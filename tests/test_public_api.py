@@ -23,6 +23,7 @@ PUBLIC = {
     "Status",
     "Verification",
     "cournot",
+    "homotopy",
     "linear_bertrand",
     "load_game",
     "logit_bertrand",

@@ -1,5 +1,7 @@
 """Following equilibria along a parameter path: folds, bounds and speed verdicts, against closed forms."""
 
+import json
+
 import numpy as np
 import pytest
 
@@ -81,8 +83,8 @@ def test_speed_verdict_event_matches_an_eigenvalue_scan():
     # Independent check: eigenvalues of diag(1, 1, k) J(s) over a fine grid of s and k.
     ks = np.exp(np.linspace(-10, 10, 801))
     grid = np.linspace(0.0, 1.0, 1001)
-    unstable = [max(np.max(np.linalg.eigvals(np.diag([1, 1, k]) @ _jacobian(s)).real) for k in ks) > 0
-                for s in grid]
+    K = np.stack([np.diag([1.0, 1.0, k]) for k in ks])
+    unstable = [np.max(np.linalg.eigvals(K @ _jacobian(s)).real) > 0 for s in grid]
     first = grid[int(np.argmax(unstable))]
     assert abs(s_event - first) <= 2e-3
 
@@ -98,3 +100,55 @@ def test_bad_parameter_choices_are_input_errors():
         trace(game, "c", 0.0, 1.0, x, index=5)
     with pytest.raises(InputError, match="not an equilibrium"):
         trace(game, "c", 10.0, 20.0, x + 5.0, index=0)
+
+
+def test_trace_command_json_contract(capsys):
+    # Saltmere ferries (invented): linear Cournot, a = 120, b = 1.5, costs (c1, 24, 45). Common
+    # practice: q_1 = (a - 4 c_1 + sum c) / (4 b) = 0 at c_1 = (120 + 69) / 3 = 63.
+    from equipoise.cli import main
+
+    code = main(["trace", "models/cournot_saltmere_ferries.py", "--param", "c[0]", "--from", "10",
+                 "--to", "90", "--json"])
+    assert code == 0
+    out = json.loads(capsys.readouterr().out)
+    (branch,) = out["branches"]
+    assert branch["status"] == "reached_end"
+    assert {"param", "actions", "stability"} <= set(branch["points"][0])
+    assert set(branch["points"][0]["stability"]) >= {"equal_speeds", "player_speeds", "coordinate_speeds"}
+    (ev,) = branch["events"]
+    assert ev["kind"] == "bound" and abs(ev["param"] - 63.0) < 1e-6
+    assert ev["actions"]["bluewake"] == [pytest.approx(0.0, abs=1e-9)]
+    assert "Caution" in out["caution"]
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["--param", "c[", "--from", "1", "--to", "2"], "expected NAME or NAME[INDEX]"),
+    (["--param", "zeta", "--from", "1", "--to", "2"], "not a parameter"),
+    (["--param", "c", "--from", "1", "--to", "2"], "give an entry"),
+    (["--param", "c[7]", "--from", "1", "--to", "2"], "expected an index"),
+    (["--param", "c[0]", "--from", "10", "--to", "20", "--equilibrium", "4"], "expected a number from 1 to 1"),
+])
+def test_trace_command_bad_input_is_one_line(capsys, argv, message):
+    from equipoise.cli import main
+
+    assert main(["trace", "models/cournot_saltmere_ferries.py", *argv]) == 2
+    err = capsys.readouterr().err
+    assert message in err and err.count("\n") == 1
+
+
+def test_hopf_event_where_the_complex_pair_crosses():
+    # u_1 = s x_1^2 / 2 + x_1 x_2 + x_1, u_2 = s x_2^2 / 2 - x_1 x_2 + x_2: J = [[s, 1], [-1, s]] has
+    # eigenvalues s +- i (elementary), so the pair crosses the imaginary axis at s = 0.
+    def payoffs(x, th):
+        a, b = x["a"][0], x["b"][0]
+        return {"a": th["s"] * a * a / 2 + a * b + a, "b": th["s"] * b * b / 2 - a * b + b}
+
+    game = Game({"a": 1, "b": 1}, payoffs, params={"s": -1.0}, search_box={"a": (-3.0, 3.0), "b": (-3.0, 3.0)})
+    x0 = equipoise.solve(game, starts=2, stability=False).equilibria[0].x
+    br = trace(game, "s", -1.0, 1.0, x0, stability=False)
+    assert br.status == "reached_end"
+    (ev,) = [e for e in br.events if e.kind == "hopf"]
+    assert abs(ev.param) < 1e-8
+    # The equilibrium solves s a + b + 1 = 0, s b - a + 1 = 0: at s = 0, a = 1, b = -1.
+    np.testing.assert_allclose(ev.x, [1.0, -1.0], atol=1e-7)
+    assert not [e for e in br.events if e.kind in ("fold", "real_crossing")]

@@ -11,6 +11,7 @@ _jax.config.update("jax_enable_x64", True)
 from ._continuation import Branch, BranchPoint, Event, trace  # noqa: E402
 from ._errors import InputError  # noqa: E402
 from ._game import Game  # noqa: E402
+from ._homotopy import homotopy  # noqa: E402
 from ._loader import load_game  # noqa: E402
 from ._newton import RootResult, newton_solve  # noqa: E402
 from ._solve import Equilibrium, Solution, solve  # noqa: E402
@@ -33,6 +34,7 @@ __all__ = [
     "Status",
     "Verification",
     "cournot",
+    "homotopy",
     "linear_bertrand",
     "load_game",
     "logit_bertrand",

@@ -11,7 +11,7 @@ scaled by the search-box widths, so arclength is unit-free.
 
 Events between two accepted points are located by bisection on the arclength
 hyperplane (each trial point corrected onto the branch) to
-``event_tol`` in scaled arclength:
+``event_tol`` in scaled arclength (``VERDICT_TOL`` for speed verdicts):
 
 * ``fold``: the tangent's :math:`\lambda` component changes sign (a turning
   point, :math:`\det J = 0`: two equilibria meet);
@@ -41,6 +41,12 @@ from ._errors import InputError
 from .stability import classify_free
 
 
+#: The starting actions must solve the KKT conditions to this scaled residual (then are polished).
+START_TOL = 1e-6
+#: Scaled-arclength tolerance for locating ``speed_verdict`` events (other events: ``event_tol``).
+VERDICT_TOL = 1e-6
+
+
 @dataclass(frozen=True)
 class BranchPoint:
     """One accepted point: path position, parameter value, actions, labels."""
@@ -49,6 +55,7 @@ class BranchPoint:
     param: float
     x: np.ndarray
     stability: Any
+    free: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -167,6 +174,10 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
     lower, upper = np.asarray(game.lower, dtype=float), np.asarray(game.upper, dtype=float)
     x0 = np.asarray(x0, dtype=float)
     F0 = np.asarray(field_at(jnp.concatenate([jnp.asarray(x0 / w), jnp.zeros(1)]), w, tha, thb))
+    natural = np.max(np.abs(x0 - np.clip(x0 + F0, lower, upper)) / w)
+    if not natural <= START_TOL:
+        raise InputError(f"the starting actions are not an equilibrium at {param} = {start:g} "
+                         f"(scaled KKT residual {natural:.1e}, expected <= {START_TOL:g})")
     fixed, bound = _active_set(x0, F0, lower, upper, w)
 
     def run_correct(y_pred, t, fixed, bound):
@@ -204,9 +215,8 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
         return {"det": det_sign, "hopf": hopf_count, "verdicts": verdicts, "labels": labels, "F": F,
                 "turn": float(np.sign(t[-1]))}
 
-    points = [BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, None)]
     cur = info(y, t, fixed)
-    points[-1] = BranchPoint(points[-1].lam, points[-1].param, points[-1].x, cur["labels"])
+    points = [BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, cur["labels"], ~fixed)]
     events: list[Event] = []
     h, status, corrections = step, "max_points", 0
     while len(points) < max_points:
@@ -252,7 +262,7 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
             t = run_tangent(y_ev, t, fixed, bound)
             y = y_ev
             cur = info(y, t, fixed)
-            points.append(BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, cur["labels"]))
+            points.append(BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, cur["labels"], ~fixed))
             continue
         for kind, changed in (("fold", new["turn"] != cur["turn"]),
                               ("real_crossing", new["det"] != cur["det"] and new["turn"] == cur["turn"]),
@@ -270,10 +280,10 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
             if res <= tol:
                 y = y_end
                 cur = info(y, run_tangent(y, t, fixed, bound), fixed)
-                points.append(BranchPoint(1.0, param_at(1.0), y[:-1] * w, cur["labels"]))
+                points.append(BranchPoint(1.0, param_at(1.0), y[:-1] * w, cur["labels"], ~fixed))
                 status = "reached_end"
                 break
-        points.append(BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, cur["labels"]))
+        points.append(BranchPoint(float(y[-1]), param_at(y[-1]), y[:-1] * w, cur["labels"], ~fixed))
         if y[-1] < 0.0:
             status = "returned"
             break
@@ -322,7 +332,8 @@ def _locate(kind, y, t, h, cur, fixed, bound, run_correct, run_tangent, info, to
         ts = run_tangent(ys, t, fixed, bound)
         return info(ys, ts, fixed)[key] != cur[key]
 
-    s = _bisect(changed, 0.0, h, tol)
+    # A verdict costs a full classification per trial point: located more coarsely.
+    s = _bisect(changed, 0.0, h, max(tol, VERDICT_TOL) if kind == "speed_verdict" else tol)
     ys, _ = run_correct(y + s * t, t, fixed, bound)
     detail = {}
     if kind == "speed_verdict":

@@ -56,11 +56,69 @@ def solution_dict(solution, game, model: str) -> dict[str, Any]:
 
 def _stability_dict(e, game) -> dict[str, Any] | None:
     """The stability object, naming the free coordinates its certificates refer to."""
-    if e.stability is None:
+    return _labels_dict(e.stability, e.interior, game)
+
+
+def _labels_dict(report, free, game) -> dict[str, Any] | None:
+    if report is None:
         return None
-    out = e.stability.to_dict()
-    out["coordinates"] = [game.coordinate_name(k) for k in range(game.n) if e.interior[k]]
+    out = report.to_dict()
+    out["coordinates"] = [game.coordinate_name(k) for k in range(game.n) if free[k]]
     return out
+
+
+def branches_dict(branches, game, model: str, param: str, start: float, end: float) -> dict[str, Any]:
+    """The JSON object for ``equipoise trace --json``."""
+    def actions(x):
+        return {p: np.asarray(a).tolist() for p, a in game.split(np.asarray(x)).items()}
+
+    return {
+        "model": model,
+        "param": param,
+        "from": start,
+        "to": end,
+        "branches": [
+            {
+                "status": b.status,
+                "points": [{"param": pt.param, "actions": actions(pt.x),
+                            "stability": _labels_dict(pt.stability, pt.free, game)} for pt in b.points],
+                "events": [{"kind": ev.kind, "param": ev.param, "actions": actions(ev.x), **ev.detail}
+                           for ev in b.events],
+                "stats": b.stats,
+            }
+            for b in branches
+        ],
+        "caution": CAUTION,
+    }
+
+
+def branches_table(branches, game, model: str, param: str, start: float, end: float) -> str:
+    """A plain-text report of traced branches: where each starts and ends, and its events."""
+    lines = [f"model: {model}   tracing {param} from {_num(start)} to {_num(end)}",
+             f"{len(branches)} branch(es)"]
+
+    def acts(x):
+        return ", ".join(f"{game.coordinate_name(k)} = {_num(float(v))}" for k, v in enumerate(np.asarray(x)))
+
+    for k, b in enumerate(branches, 1):
+        lines.append("")
+        lines.append(f"branch {k}: {b.status.replace('_', ' ')} after {len(b.points)} points")
+        lines.append(f"  start ({param} = {_num(b.points[0].param)}): {acts(b.points[0].x)}")
+        lines.append(f"  end   ({param} = {_num(b.points[-1].param)}): {acts(b.points[-1].x)}")
+        if not b.events:
+            lines.append("  no events")
+        for ev in b.events:
+            extra = ""
+            if ev.kind == "bound":
+                extra = f" ({ev.detail['coordinate']} {ev.detail['action']} its bound)"
+            elif ev.kind == "speed_verdict":
+                extra = (f" (per-player {ev.detail['before']['player_speeds']} -> {ev.detail['after']['player_speeds']},"
+                         f" per-coordinate {ev.detail['before']['coordinate_speeds']} -> "
+                         f"{ev.detail['after']['coordinate_speeds']})")
+            lines.append(f"  {ev.kind} at {param} = {_num(ev.param)}{extra}: {acts(ev.x)}")
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)
 
 
 def _num(v: float) -> str:

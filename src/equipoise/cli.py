@@ -8,7 +8,10 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
 import sys
+
+import numpy as np
 
 from . import _report
 from ._errors import InputError
@@ -100,6 +103,54 @@ def _cmd_check(args) -> int:
     return 0
 
 
+_PARAM = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[\s*(\d+)\s*\])?\s*$")
+
+
+def _cmd_trace(args) -> int:
+    from ._continuation import trace
+    from ._loader import load_game
+    from ._solve import solve
+
+    m = _PARAM.match(args.param)
+    if not m:
+        raise InputError(f"--param {args.param!r}: expected NAME or NAME[INDEX], e.g. c[0]")
+    name, index = m.group(1), None if m.group(2) is None else int(m.group(2))
+    game = load_game(args.model)
+    params = _parse_sets(args.set or [])
+    base = game.theta(params)
+    if name not in base:
+        raise InputError(f"--param {name}: not a parameter of {args.model} (has {', '.join(base) or 'none'})")
+    value = np.array(base[name], dtype=float)
+    if index is None and value.ndim != 0:
+        raise InputError(f"--param {name}: has shape {value.shape}; give an entry, e.g. {name}[0]")
+    if index is not None and (value.ndim != 1 or index >= value.size):
+        raise InputError(f"--param {name}[{index}]: expected an index into a vector of {value.size} entries")
+    if index is None:
+        value = np.asarray(args.start)
+    else:
+        value[index] = args.start
+    at_start = {**params, name: value.tolist()}
+    solution = solve(game, at_start, starts=args.starts, seed=args.seed, stability=False,
+                     all_equilibria=args.all)
+    chosen = solution.equilibria
+    if args.equilibrium is not None:
+        if not 1 <= args.equilibrium <= len(chosen):
+            raise InputError(f"--equilibrium {args.equilibrium}: {len(chosen)} equilibria were found at "
+                             f"{args.param} = {args.start:g}; expected a number from 1 to {len(chosen)}")
+        chosen = [chosen[args.equilibrium - 1]]
+    if not chosen:
+        raise InputError(f"no equilibrium found at {args.param} = {args.start:g} to trace from "
+                         f"(try more --starts)")
+    branches = [trace(game, name, args.start, args.end, e.x, params, index=index) for e in chosen]
+    if args.json:
+        json.dump(_report.branches_dict(branches, game, args.model, args.param, args.start, args.end),
+                  sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(_report.branches_table(branches, game, args.model, args.param, args.start, args.end))
+    return 0
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -122,6 +173,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", help='JSON: {"jacobian": [[..]], "blocks": [m_1, ...]} (blocks optional)')
     p.add_argument("--json", action="store_true", help="print the stability object as JSON")
     p.set_defaults(func=_cmd_check)
+    p = sub.add_parser("trace", help="follow equilibria as one parameter moves, and locate events")
+    p.add_argument("model", help="a Python file that defines `game`")
+    p.add_argument("--param", required=True, metavar="NAME[INDEX]",
+                   help="the parameter that moves, or one entry of a vector parameter")
+    p.add_argument("--from", dest="start", type=float, required=True, metavar="A", help="value at the start")
+    p.add_argument("--to", dest="end", type=float, required=True, metavar="B", help="value at the end")
+    p.add_argument("--equilibrium", type=int, metavar="K",
+                   help="trace only the K-th equilibrium found at the start (1-based; default all)")
+    _solve_options(p)
+    p.set_defaults(func=_cmd_trace)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)
