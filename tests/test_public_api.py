@@ -30,6 +30,7 @@ PUBLIC = {
     "newton_solve",
     "solve",
     "trace",
+    "trace_between",
     "verify",
 }
 

@@ -152,3 +152,28 @@ def test_hopf_event_where_the_complex_pair_crosses():
     # The equilibrium solves s a + b + 1 = 0, s b - a + 1 = 0: at s = 0, a = 1, b = -1.
     np.testing.assert_allclose(ev.x, [1.0, -1.0], atol=1e-7)
     assert not [e for e in br.events if e.kind in ("fold", "real_crossing")]
+
+
+def test_held_action_leaves_its_bound_when_the_cost_falls_back():
+    # The same closed form traced backwards: firm 1, shut down at c_1 = 80, re-enters at c_1 = 55
+    # (q_1 = (a - 2 c_1 + c_2) / (3 b) turns positive), and ends at the symmetric q = 30 at c_1 = 10.
+    game = equipoise.cournot(a=100.0, b=1.0, costs=[80.0, 10.0])
+    x = equipoise.solve(game, stability=False).equilibria[0].x
+    np.testing.assert_allclose(x, [0.0, 45.0], atol=1e-9)
+    br = trace(game, "c", 80.0, 10.0, x, index=0, stability=False)
+    (ev,) = [e for e in br.events if e.kind == "bound"]
+    assert ev.detail["action"] == "leaves" and abs(ev.param - 55.0) < 1e-6
+    np.testing.assert_allclose(br.points[-1].x, [30.0, 30.0], atol=1e-9)
+
+
+def test_straight_line_between_two_parameter_settings():
+    # Both costs and the demand intercept move at once; the end point is the closed form at the
+    # end setting (common practice): a = 120, c = (30, 15): q = (120 - 60 + 15, 120 - 30 + 30) / 3.
+    from equipoise import trace_between
+
+    game = equipoise.cournot(a=100.0, b=1.0, costs=[10.0, 10.0])
+    x = equipoise.solve(game, stability=False).equilibria[0].x
+    br = trace_between(game, x, {"a": 100.0, "c": [10.0, 10.0]}, {"a": 120.0, "c": [30.0, 15.0]},
+                       stability=False)
+    assert br.status == "reached_end" and br.points[-1].param == 1.0
+    np.testing.assert_allclose(br.points[-1].x, [25.0, 40.0], atol=1e-9)

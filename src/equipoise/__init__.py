@@ -8,7 +8,7 @@ import jax as _jax
 
 _jax.config.update("jax_enable_x64", True)
 
-from ._continuation import Branch, BranchPoint, Event, trace  # noqa: E402
+from ._continuation import Branch, BranchPoint, Event, trace, trace_between  # noqa: E402
 from ._errors import InputError  # noqa: E402
 from ._game import Game  # noqa: E402
 from ._homotopy import homotopy  # noqa: E402
@@ -41,5 +41,6 @@ __all__ = [
     "newton_solve",
     "solve",
     "trace",
+    "trace_between",
     "verify",
 ]

@@ -77,8 +77,8 @@ class Branch:
     stats: dict[str, Any]
 
 
-def _kernels(game, name: str, index, base: dict, target: dict):
-    key = ("continuation", name, index)
+def _kernels(game):
+    key = ("continuation",)
 
     def build():
         def theta_at(lam, tha, thb):
@@ -165,18 +165,38 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
         a_val, b_val = np.asarray(float(start)), np.asarray(float(end))
     else:
         a_val[index], b_val[index] = float(start), float(end)
-    tha = {k: jnp.asarray(v) for k, v in game.theta({**(params or {}), param: a_val.tolist()}).items()}
-    thb = {k: jnp.asarray(v) for k, v in game.theta({**(params or {}), param: b_val.tolist()}).items()}
-    correct, tangent, jac, field_at = _kernels(game, param, index, tha, thb)
+    label = param if index is None else f"{param}[{index}]"
+    return _follow(game, {**(params or {}), param: a_val.tolist()}, {**(params or {}), param: b_val.tolist()},
+                   x0, lambda lam: float(start + lam * (end - start)), f"{label} = {float(start):g}",
+                   max_points=max_points, step=step, max_step=max_step, min_step=min_step,
+                   event_tol=event_tol, tol=tol, stability=stability)
 
-    lo_box, hi_box = (np.asarray(v) for v in game.region(game.theta(params)))
+
+def trace_between(game, x0, start_params: dict, end_params: dict, **options) -> Branch:
+    """Follow the equilibrium at ``x0`` along the straight line between two parameter settings.
+
+    Every parameter may move; points and events report the path position
+    ``lambda`` in [0, 1] as their ``param``. ``options`` as for :func:`trace`.
+    """
+    return _follow(game, dict(start_params), dict(end_params), x0, float, "the start of the path", **options)
+
+
+def _follow(game, params_a: dict, params_b: dict, x0, param_at, where: str, *, max_points: int = 400,
+            step: float = 0.02, max_step: float = 0.1, min_step: float = 1e-7, event_tol: float = 1e-10,
+            tol: float = 1e-10, stability: bool = True) -> Branch:
+    """The continuation driver of :func:`trace` and :func:`trace_between`."""
+    tha = {k: jnp.asarray(v) for k, v in game.theta(params_a).items()}
+    thb = {k: jnp.asarray(v) for k, v in game.theta(params_b).items()}
+    correct, tangent, jac, field_at = _kernels(game)
+
+    lo_box, hi_box = (np.asarray(v) for v in game.region(game.theta(params_a)))
     w = np.maximum(hi_box - lo_box, 1e-12)
     lower, upper = np.asarray(game.lower, dtype=float), np.asarray(game.upper, dtype=float)
     x0 = np.asarray(x0, dtype=float)
     F0 = np.asarray(field_at(jnp.concatenate([jnp.asarray(x0 / w), jnp.zeros(1)]), w, tha, thb))
     natural = np.max(np.abs(x0 - np.clip(x0 + F0, lower, upper)) / w)
     if not natural <= START_TOL:
-        raise InputError(f"the starting actions are not an equilibrium at {param} = {start:g} "
+        raise InputError(f"the starting actions are not an equilibrium at {where} "
                          f"(scaled KKT residual {natural:.1e}, expected <= {START_TOL:g})")
     fixed, bound = _active_set(x0, F0, lower, upper, w)
 
@@ -189,14 +209,11 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
         return np.asarray(tangent(jnp.asarray(y), jnp.asarray(t_prev), jnp.asarray(fixed),
                                   jnp.asarray(bound / w), jnp.asarray(w), tha, thb))
 
-    def param_at(lam):
-        return float(start + lam * (end - start))
-
     # G uses scaled bounds: x - b in scaled units is (u - b / w) * w; pass b / w and compare u.
     y = np.concatenate([x0 / w, [0.0]])
     y, res = run_correct(y, np.eye(y.size)[-1], fixed, bound)
     if not res <= tol * 10:
-        raise InputError(f"the starting actions are not an equilibrium at {param} = {start:g} "
+        raise InputError(f"the starting actions are not an equilibrium at {where} "
                          f"(scaled residual {res:.1e} after correction)")
     t = run_tangent(y, np.eye(y.size)[-1], fixed, bound)
     if t[-1] < 0:
