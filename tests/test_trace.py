@@ -177,3 +177,20 @@ def test_straight_line_between_two_parameter_settings():
                        stability=False)
     assert br.status == "reached_end" and br.points[-1].param == 1.0
     np.testing.assert_allclose(br.points[-1].x, [25.0, 40.0], atol=1e-9)
+
+
+def test_real_crossing_at_the_pitchfork_of_the_trivial_branch():
+    # u_i = -x_i^2 / 2 + s x_i x_j - x_i^4 / 4: x = 0 is an equilibrium for every s, with
+    # J = [[-1, s], [s, -1]] and eigenvalues -1 +- s (elementary), so a real eigenvalue crosses
+    # zero at s = 1 (a pitchfork: symmetric branches +-sqrt(s - 1) appear) without a turn.
+    def payoffs(x, th):
+        a, b = x["a"][0], x["b"][0]
+        s = th["s"]
+        return {"a": -a * a / 2 + s * a * b - a ** 4 / 4, "b": -b * b / 2 + s * a * b - b ** 4 / 4}
+
+    game = Game({"a": 1, "b": 1}, payoffs, params={"s": 0.0}, search_box={"a": (-2.0, 2.0), "b": (-2.0, 2.0)})
+    br = trace(game, "s", 0.0, 2.0, np.zeros(2), stability=False)
+    assert br.status == "reached_end"
+    (ev,) = [e for e in br.events if e.kind == "real_crossing"]
+    assert abs(ev.param - 1.0) < 1e-7
+    assert not [e for e in br.events if e.kind == "fold"]
