@@ -217,3 +217,47 @@ def stability_lines(rep) -> list[str]:
     if extras:
         lines.append("; ".join(extras))
     return lines
+
+
+def statics_dict(results, game, model: str, wrt: str, params) -> dict[str, Any]:
+    """The JSON object for ``equipoise statics --json``."""
+    return {
+        "model": model,
+        "wrt": wrt,
+        "params": {k: _plain(v) for k, v in params.items()},
+        "rows": [game.coordinate_name(k) for k in range(game.n)],
+        "equilibria": [
+            {
+                "actions": {p: np.asarray(a).tolist() for p, a in e.actions.items()},
+                "nash": e.nash.value,
+                "derivatives": {wrt: np.asarray(D).tolist()},
+                "stability": _stability_dict(e, game),
+                "trust": flags,
+            }
+            for e, D, flags in results
+        ],
+        "caution": CAUTION,
+    }
+
+
+def statics_table(results, game, model: str, wrt: str) -> str:
+    """Derivative matrices in plain text, one block per equilibrium, with the trust flags."""
+    lines = [f"model: {model}   derivatives of the equilibrium actions with respect to {wrt}"]
+    names = [game.coordinate_name(k) for k in range(game.n)]
+    width = max(len(n) for n in names)
+    for k, (e, D, flags) in enumerate(results, 1):
+        D = np.asarray(D)
+        cols = [wrt] if D.shape[1] == 1 else [f"{wrt}[{j}]" for j in range(D.shape[1])]
+        lines.append("")
+        lines.append(f"equilibrium {k}: {NASH_WORDS[e.nash]}")
+        lines.append("  " + " " * width + "  " + "  ".join(f"{c:>12}" for c in cols))
+        for i, name in enumerate(names):
+            lines.append(f"  {name.ljust(width)}  " + "  ".join(f"{_num(float(v)):>12}" for v in D[i]))
+        if flags["flag"]:
+            lines.append(f"  WARNING: {flags['flag']}")
+        elif flags["stable"]:
+            lines.append("  stable and " + ("Hicksian" if flags["hicksian"] else "Hicksian status unknown")
+                         + ": comparative statics can be relied on locally")
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)

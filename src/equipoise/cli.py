@@ -151,6 +151,23 @@ def _cmd_trace(args) -> int:
     return 0
 
 
+def _cmd_statics(args) -> int:
+    from ._loader import load_game
+    from ._statics import check_wrt, statics
+
+    game = load_game(args.model)
+    check_wrt(game, args.wrt)
+    params = _parse_sets(args.set or [])
+    results = statics(game, params, args.wrt, starts=args.starts, seed=args.seed, all_equilibria=args.all)
+    if args.json:
+        json.dump(_report.statics_dict(results, game, args.model, args.wrt, game.theta(params)),
+                  sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(_report.statics_table(results, game, args.model, args.wrt))
+    return 0
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -183,6 +200,11 @@ def build_parser() -> argparse.ArgumentParser:
                    help="trace only the K-th equilibrium found at the start (1-based; default all)")
     _solve_options(p)
     p.set_defaults(func=_cmd_trace)
+    p = sub.add_parser("statics", help="comparative statics (pass-through) of every equilibrium")
+    p.add_argument("model", help="a Python file that defines `game`")
+    p.add_argument("--wrt", required=True, metavar="NAME", help="the parameter to differentiate with respect to")
+    _solve_options(p)
+    p.set_defaults(func=_cmd_statics)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)
