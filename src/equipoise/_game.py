@@ -59,6 +59,10 @@ class Game:
         always use the true pseudo-gradient.
     name : str, optional
         A label used in reports.
+    consumer_surplus : callable, optional
+        ``consumer_surplus(x, theta) -> scalar`` in money units, written with
+        ``jax.numpy``; welfare reports use it (see :mod:`equipoise._welfare`).
+        A model file may instead define a module-level ``consumer_surplus``.
 
     Examples
     --------
@@ -84,6 +88,7 @@ class Game:
         search_box: Mapping[str, Any] | Callable | None = None,
         foc: Callable[[dict, dict], Mapping[str, Any]] | None = None,
         name: str | None = None,
+        consumer_surplus: Callable[[dict, dict], Any] | None = None,
     ):
         if not isinstance(players, Mapping) or not players:
             raise InputError("players: expected a non-empty mapping of player name to number of actions")
@@ -105,6 +110,9 @@ class Game:
         if foc is not None and not callable(foc):
             raise InputError("foc: expected a function foc(x, theta) -> {player: array}")
         self.foc = foc
+        if consumer_surplus is not None and not callable(consumer_surplus):
+            raise InputError("consumer_surplus: expected a function consumer_surplus(x, theta) -> number")
+        self.consumer_surplus = consumer_surplus
         self.name = name
         self.source: str | None = None
         self.defaults: dict[str, np.ndarray] = {

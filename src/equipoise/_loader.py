@@ -55,4 +55,10 @@ def load_game(path: str | os.PathLike) -> Game:
     if not isinstance(game, Game):
         raise InputError(f"{path}: `game` is a {type(game).__name__}; expected an equipoise.Game")
     game.source = path
+    extra = getattr(module, "consumer_surplus", None)
+    if extra is not None and game.consumer_surplus is None:
+        if not callable(extra):
+            raise InputError(f"{path}: `consumer_surplus` is a {type(extra).__name__}; expected a function "
+                             "consumer_surplus(x, theta) -> number")
+        game.consumer_surplus = extra
     return game

@@ -98,6 +98,12 @@ def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
         hi = theta["c"] + LOGIT_BOX / theta["alpha"]
         return {f: (lo[np.asarray(products[f])], hi[np.asarray(products[f])]) for f in firms}
 
+    def consumer_surplus(x, theta):
+        # Inclusive value (Small & Rosen 1981), up to a constant: (M / alpha) log(1 + sum exp(v)).
+        v = theta["delta"] - theta["alpha"] * prices_of(x)
+        top = jnp.maximum(jnp.max(v), 0.0)
+        return theta["size"] / theta["alpha"] * (top + jnp.log(jnp.exp(-top) + jnp.sum(jnp.exp(v - top))))
+
     game = Game(
         players={f: len(products[f]) for f in firms},
         payoffs=payoffs,
@@ -105,5 +111,6 @@ def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
         search_box=box,
         foc=foc,
         name="logit_bertrand",
+        consumer_surplus=consumer_surplus,
     )
     return game
