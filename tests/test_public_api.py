@@ -12,6 +12,7 @@ import equipoise.families
 # The agreed public API. A change here is an API change: update on purpose.
 PUBLIC = {
     "Branch",
+    "Counterfactual",
     "BranchPoint",
     "Equilibrium",
     "Event",
@@ -22,12 +23,16 @@ PUBLIC = {
     "Solution",
     "Status",
     "Verification",
+    "counterfactual",
     "cournot",
     "homotopy",
     "linear_bertrand",
     "load_game",
     "logit_bertrand",
+    "logit_products",
+    "merged_ownership",
     "newton_solve",
+    "ownership_matrix",
     "solve",
     "trace",
     "trace_between",
@@ -74,7 +79,8 @@ def test_public_objects_are_documented():
 
 
 def test_families_reexport():
-    assert set(equipoise.families.__all__) == {"cournot", "linear_bertrand", "logit_bertrand"}
+    assert set(equipoise.families.__all__) == {"cournot", "linear_bertrand", "logit_bertrand", "logit_products",
+                                               "merged_ownership", "ownership_matrix"}
     for name in equipoise.families.__all__:
         assert getattr(equipoise, name) is getattr(equipoise.families, name)
 

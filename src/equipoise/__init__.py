@@ -17,12 +17,15 @@ from ._newton import RootResult, newton_solve  # noqa: E402
 from ._solve import Equilibrium, Solution, solve  # noqa: E402
 from ._status import Nash, Status  # noqa: E402
 from ._verify import Verification, verify  # noqa: E402
-from .families import cournot, linear_bertrand, logit_bertrand  # noqa: E402
+from ._counterfactual import Counterfactual, counterfactual  # noqa: E402
+from .families import (  # noqa: E402
+    cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership, ownership_matrix)
 
 __version__ = "0.1.0"
 
 __all__ = [
     "Branch",
+    "Counterfactual",
     "BranchPoint",
     "Event",
     "Equilibrium",
@@ -33,12 +36,16 @@ __all__ = [
     "Solution",
     "Status",
     "Verification",
+    "counterfactual",
     "cournot",
     "homotopy",
     "linear_bertrand",
     "load_game",
     "logit_bertrand",
+    "logit_products",
+    "merged_ownership",
     "newton_solve",
+    "ownership_matrix",
     "solve",
     "trace",
     "trace_between",

@@ -60,6 +60,8 @@ class BranchPoint:
 
 @dataclass(frozen=True)
 class Event:
+    """A located event: its kind (see the module docstring), path position, parameter value, actions."""
+
     kind: str
     lam: float
     param: float

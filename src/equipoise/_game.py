@@ -63,6 +63,9 @@ class Game:
         ``consumer_surplus(x, theta) -> scalar`` in money units, written with
         ``jax.numpy``; welfare reports use it (see :mod:`equipoise._welfare`).
         A model file may instead define a module-level ``consumer_surplus``.
+    producer_surplus : callable, optional
+        ``producer_surplus(x, theta) -> scalar``; default the sum of payoffs
+        (needed where payoffs are weighted, e.g. ownership-weighted profits).
 
     Examples
     --------
@@ -89,6 +92,7 @@ class Game:
         foc: Callable[[dict, dict], Mapping[str, Any]] | None = None,
         name: str | None = None,
         consumer_surplus: Callable[[dict, dict], Any] | None = None,
+        producer_surplus: Callable[[dict, dict], Any] | None = None,
     ):
         if not isinstance(players, Mapping) or not players:
             raise InputError("players: expected a non-empty mapping of player name to number of actions")
@@ -113,6 +117,9 @@ class Game:
         if consumer_surplus is not None and not callable(consumer_surplus):
             raise InputError("consumer_surplus: expected a function consumer_surplus(x, theta) -> number")
         self.consumer_surplus = consumer_surplus
+        if producer_surplus is not None and not callable(producer_surplus):
+            raise InputError("producer_surplus: expected a function producer_surplus(x, theta) -> number")
+        self.producer_surplus = producer_surplus
         self.name = name
         self.source: str | None = None
         self.defaults: dict[str, np.ndarray] = {

@@ -261,3 +261,80 @@ def statics_table(results, game, model: str, wrt: str) -> str:
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+def _end_dict(end, game) -> dict[str, Any] | None:
+    if end is None:
+        return None
+    stab = end["stability"]
+    free = None
+    if stab is not None:
+        free = np.ones(game.n, dtype=bool) if end.get("free") is None else end["free"]
+    return {
+        "actions": {p: np.asarray(a).tolist() for p, a in end["actions"].items()},
+        "payoffs": dict(end["payoffs"]),
+        "consumer_surplus": end["consumer_surplus"],
+        "producer_surplus": end["producer_surplus"],
+        "stability": _labels_dict(stab, free, game) if stab is not None else None,
+    }
+
+
+def counterfactual_dict(result, game, model: str) -> dict[str, Any]:
+    """The JSON object for ``equipoise counterfactual --json``."""
+    def actions(x):
+        return {p: np.asarray(a).tolist() for p, a in game.split(np.asarray(x)).items()}
+
+    return {
+        "model": model,
+        "baseline": _end_dict(result.baseline, game),
+        "counterfactual": _end_dict(result.counterfactual, game),
+        "path": {"status": result.path.status,
+                 "events": [{"kind": ev.kind, "param": ev.param, "actions": actions(ev.x), **ev.detail}
+                            for ev in result.path.events]},
+        "changes": None if result.counterfactual is None else {
+            "actions": {p: (np.asarray(result.counterfactual["actions"][p]) - np.asarray(a)).tolist()
+                        for p, a in result.baseline["actions"].items()},
+            "payoffs": {p: result.counterfactual["payoffs"][p] - v for p, v in result.baseline["payoffs"].items()},
+            "producer_surplus": result.counterfactual["producer_surplus"] - result.baseline["producer_surplus"],
+            "consumer_surplus": None if result.baseline["consumer_surplus"] is None else
+            result.counterfactual["consumer_surplus"] - result.baseline["consumer_surplus"],
+        },
+        "alternatives": [_end_dict(a, game) for a in result.alternatives],
+        "willig_bound": None if result.willig is None else result.willig["bound"],
+        "willig": result.willig,
+        "caution": CAUTION,
+    }
+
+
+def counterfactual_table(result, game, model: str) -> str:
+    """Baseline and counterfactual side by side, with changes, welfare and the path's events."""
+    lines = [f"model: {model}   counterfactual by continuation from the baseline equilibrium"]
+    b, c = result.baseline, result.counterfactual
+    if c is None:
+        lines.append(f"the baseline equilibrium does not continue to the counterfactual setting "
+                     f"(path {result.path.status.replace('_', ' ')}); equilibria found there instead: "
+                     f"{len(result.alternatives)}")
+        rows = []
+    else:
+        rows = [(game.coordinate_name(k), float(b["x"][k]), float(c["x"][k])) for k in range(game.n)]
+        rows += [(f"payoff {p}", b["payoffs"][p], c["payoffs"][p]) for p in game.players]
+        rows.append(("producer surplus", b["producer_surplus"], c["producer_surplus"]))
+        if b["consumer_surplus"] is not None:
+            rows.append(("consumer surplus", b["consumer_surplus"], c["consumer_surplus"]))
+    width = max([len(r[0]) for r in rows] + [8])
+    if rows:
+        lines.append(f"  {'':<{width}}  {'baseline':>12}  {'counterfactual':>14}  {'change':>12}")
+        for name, x0, x1 in rows:
+            lines.append(f"  {name:<{width}}  {_num(x0):>12}  {_num(x1):>14}  {_num(x1 - x0):>12}")
+    for ev in result.path.events:
+        lines.append(f"  event on the path: {ev.kind} at path position {_num(ev.param)}")
+    for label, end in (("baseline", b), ("counterfactual", c)):
+        if end is not None and end["stability"] is not None:
+            lines.append(f"  {label}: " + "; ".join(stability_lines(end["stability"])[:1]))
+    if result.willig is not None:
+        w = result.willig
+        lines.append(f"  Willig bound on the consumer-surplus change vs compensating/equivalent variation: "
+                     f"{100 * w['bound']:.3g} %" + (f"  WARNING: {w['warning']}" if w["warning"] else ""))
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)

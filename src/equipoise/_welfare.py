@@ -1,6 +1,7 @@
 r"""Welfare at an equilibrium, and how far a consumer-surplus change may be from exact welfare.
 
-Producer surplus is the sum of the players' payoffs; consumer surplus comes from
+Producer surplus is the sum of the players' payoffs (or the model's own
+``producer_surplus``); consumer surplus comes from
 the model (``Game.consumer_surplus``; the logit family provides the inclusive
 value); total welfare is their sum.
 
@@ -24,9 +25,13 @@ WILLIG_MAX_TERM, WILLIG_MAX_SHARE = 0.05, 0.9
 
 
 def welfare(game, x, theta) -> dict[str, float | None]:
-    """Consumer surplus (None when the model has none), producer surplus, total."""
-    u = np.asarray(game.payoff_vector(np.asarray(x, dtype=float), theta))
-    ps = float(np.sum(u))
+    """Consumer surplus (None when the model has none), producer surplus (the model's, or the
+    sum of payoffs), total."""
+    x = np.asarray(x, dtype=float)
+    if game.producer_surplus is not None:
+        ps = float(game.producer_surplus(game.split(x), theta))
+    else:
+        ps = float(np.sum(np.asarray(game.payoff_vector(x, theta))))
     cs = None if game.consumer_surplus is None else float(game.consumer_surplus(game.split(np.asarray(x)), theta))
     return {"consumer_surplus": cs, "producer_surplus": ps, "total": None if cs is None else cs + ps}
 

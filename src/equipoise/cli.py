@@ -168,6 +168,32 @@ def _cmd_statics(args) -> int:
     return 0
 
 
+def _cmd_counterfactual(args) -> int:
+    from ._counterfactual import counterfactual
+    from ._loader import load_game
+
+    game = load_game(args.model)
+    eta = None
+    if args.income_elasticity is not None:
+        try:
+            eta = json.loads(args.income_elasticity)
+        except json.JSONDecodeError:
+            eta = None
+        ok = (_numeric(eta) and not isinstance(eta, list)) or (isinstance(eta, list) and len(eta) == 2
+                                                               and _numeric(eta))
+        if not ok:
+            raise InputError(f"--income-elasticity {args.income_elasticity!r}: expected a number or [low, high]")
+    result = counterfactual(game, _parse_sets(args.set or []), _parse_sets(args.to or []),
+                            equilibrium=args.equilibrium - 1, income=args.income, elasticity=eta,
+                            starts=args.starts, seed=args.seed)
+    if args.json:
+        json.dump(_report.counterfactual_dict(result, game, args.model), sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(_report.counterfactual_table(result, game, args.model))
+    return 0
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -205,6 +231,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--wrt", required=True, metavar="NAME", help="the parameter to differentiate with respect to")
     _solve_options(p)
     p.set_defaults(func=_cmd_statics)
+    p = sub.add_parser("counterfactual", help="what a baseline equilibrium becomes under new parameters")
+    p.add_argument("model", help="a Python file that defines `game`")
+    p.add_argument("--to", action="append", metavar="NAME=VALUE", required=True,
+                   help="a counterfactual parameter value (repeatable), e.g. a merger's ownership matrix")
+    p.add_argument("--equilibrium", type=int, default=1, metavar="K",
+                   help="which baseline equilibrium (1-based, default 1)")
+    p.add_argument("--income", type=float, metavar="M", help="consumers' income, for Willig's bound")
+    p.add_argument("--income-elasticity", metavar="ETA", help="a number or [low, high], for Willig's bound")
+    _solve_options(p)
+    p.set_defaults(func=_cmd_counterfactual)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)

@@ -114,3 +114,99 @@ def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
         consumer_surplus=consumer_surplus,
     )
     return game
+
+
+def ownership_matrix(owner: Sequence[str]) -> np.ndarray:
+    """``Omega[j, k] = 1`` when products ``j`` and ``k`` have the same owner, else 0."""
+    owner = [str(o) for o in owner]
+    return np.array([[1.0 if a == b else 0.0 for b in owner] for a in owner])
+
+
+def logit_products(delta: Sequence[float], alpha: float, costs: Sequence[float],
+                   owner: Sequence[str] | None = None, names: Sequence[str] | None = None,
+                   market_size: float = 1.0) -> Game:
+    r"""Logit Bertrand with ownership as a parameter: each product's price is a player.
+
+    Product :math:`j`'s price maximises its owner's profit weighted by the
+    ownership matrix :math:`\Omega` (parameter ``ownership``, ``J x J``):
+
+    .. math:: u_j = \sum_k \Omega_{jk} M (p_k - c_k) s_k .
+
+    With :math:`\Omega` from an assignment of products to firms
+    (:func:`ownership_matrix`; 1 for products of the same firm), the
+    first-order conditions are exactly those of :func:`logit_bertrand` with
+    that ``owner``, so the equilibria coincide. Because :math:`\Omega` is a
+    parameter, a merger is a counterfactual on it: ``--to ownership=...``
+    with the post-merger matrix (:func:`merged_ownership`), and intermediate
+    matrices along the path are partial-ownership weights. Verification
+    checks each price separately (a firm's joint deviation in several prices
+    is covered by the firm-level game). A product's payoff is its owner's
+    weighted profit; producer surplus counts each product's profit once.
+
+    Parameters are ``delta``, ``alpha``, ``c``, ``size`` and ``ownership``;
+    ``owner`` defaults to one firm per product; ``names`` name the products
+    (default ``product1 ..``).
+    """
+    delta = np.atleast_1d(np.asarray(delta, dtype=float))
+    c = np.atleast_1d(np.asarray(costs, dtype=float))
+    J = delta.size
+    if delta.ndim != 1 or J < 1:
+        raise InputError("delta: expected a non-empty list of mean utilities, one per product")
+    if c.shape != delta.shape:
+        raise InputError(f"costs: expected {J} marginal costs, one per product, got {c.size}")
+    owner = [f"firm{j + 1}" for j in range(J)] if owner is None else [str(o) for o in owner]
+    if len(owner) != J:
+        raise InputError(f"owner: expected {J} firm names, one per product, got {len(owner)}")
+    names = [f"product{j + 1}" for j in range(J)] if names is None else [str(n) for n in names]
+    if len(names) != J or len(set(names)) != J:
+        raise InputError(f"names: expected {J} distinct product names")
+
+    def prices_of(x):
+        return jnp.concatenate([x[n] for n in names])
+
+    def payoffs(x, theta):
+        p = prices_of(x)
+        s = logit_shares(p, theta["delta"], theta["alpha"])
+        profit = theta["size"] * (p - theta["c"]) * s
+        u = theta["ownership"] @ profit
+        return {n: u[j] for j, n in enumerate(names)}
+
+    def foc(x, theta):
+        # du_j/dp_j = M s_j [Omega_jj (1 - alpha m_j) + alpha sum_k Omega_jk m_k s_k], divided by M s_j > 0.
+        p = prices_of(x)
+        s = logit_shares(p, theta["delta"], theta["alpha"])
+        m = p - theta["c"]
+        W = theta["ownership"]
+        g = jnp.diag(W) * (1.0 - theta["alpha"] * m) + theta["alpha"] * (W @ (m * s))
+        return {n: g[j:j + 1] for j, n in enumerate(names)}
+
+    def consumer_surplus(x, theta):
+        v = theta["delta"] - theta["alpha"] * prices_of(x)
+        top = jnp.maximum(jnp.max(v), 0.0)
+        return theta["size"] / theta["alpha"] * (top + jnp.log(jnp.exp(-top) + jnp.sum(jnp.exp(v - top))))
+
+    def box(theta):
+        return {n: (theta["c"][j], theta["c"][j] + LOGIT_BOX / theta["alpha"]) for j, n in enumerate(names)}
+
+    return Game(
+        players={n: 1 for n in names},
+        payoffs=payoffs,
+        params={"delta": delta.tolist(), "alpha": float(alpha), "c": c.tolist(), "size": float(market_size),
+                "ownership": ownership_matrix(owner).tolist()},
+        search_box=box,
+        foc=foc,
+        name="logit_products",
+        consumer_surplus=consumer_surplus,
+        producer_surplus=lambda x, theta: jnp.sum(
+            theta["size"] * (prices_of(x) - theta["c"]) * logit_shares(prices_of(x), theta["delta"], theta["alpha"])),
+    )
+
+
+def merged_ownership(owner: Sequence[str], merging: Sequence[str], name: str | None = None) -> np.ndarray:
+    """The ownership matrix after the firms in ``merging`` combine (under ``name``)."""
+    merging = [str(m) for m in merging]
+    unknown = [m for m in merging if m not in set(map(str, owner))]
+    if unknown:
+        raise InputError(f"merging: {', '.join(unknown)} own no product (owners: {', '.join(dict.fromkeys(owner))})")
+    label = name or "+".join(merging)
+    return ownership_matrix([label if str(o) in merging else str(o) for o in owner])
