@@ -25,6 +25,29 @@ def logit_shares(prices, delta, alpha):
     return e / (jnp.exp(-top) + jnp.sum(e))
 
 
+def inclusive_value(prices, theta):
+    r"""Logit consumer surplus (Small & Rosen 1981), up to a constant:
+    :math:`(M / \alpha) \log(1 + \sum_j e^{\delta_j - \alpha p_j})`, computed without overflow."""
+    v = theta["delta"] - theta["alpha"] * prices
+    top = jnp.maximum(jnp.max(v), 0.0)
+    return theta["size"] / theta["alpha"] * (top + jnp.log(jnp.exp(-top) + jnp.sum(jnp.exp(v - top))))
+
+
+def _checked(delta, costs, owner):
+    """Validated ``(delta, costs, owner)`` as float arrays and a list of firm names."""
+    delta = np.atleast_1d(np.asarray(delta, dtype=float))
+    c = np.atleast_1d(np.asarray(costs, dtype=float))
+    J = delta.size
+    if delta.ndim != 1 or J < 1:
+        raise InputError("delta: expected a non-empty list of mean utilities, one per product")
+    if c.shape != delta.shape:
+        raise InputError(f"costs: expected {J} marginal costs, one per product, got {c.size}")
+    owner = [f"firm{j + 1}" for j in range(J)] if owner is None else [str(o) for o in owner]
+    if len(owner) != J:
+        raise InputError(f"owner: expected {J} firm names, one per product, got {len(owner)}")
+    return delta, c, owner
+
+
 def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
                    owner: Sequence[str] | None = None, market_size: float = 1.0) -> Game:
     r"""Logit Bertrand pricing: each firm sets the prices of the products it owns.
@@ -55,18 +78,8 @@ def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
         :math:`[c_j, c_j + 10/\alpha]`. The solver uses the first-order
         conditions divided by each product's (positive) share.
     """
-    delta = np.atleast_1d(np.asarray(delta, dtype=float))
-    c = np.atleast_1d(np.asarray(costs, dtype=float))
+    delta, c, owner = _checked(delta, costs, owner)
     J = delta.size
-    if delta.ndim != 1 or J < 1:
-        raise InputError("delta: expected a non-empty list of mean utilities, one per product")
-    if c.shape != delta.shape:
-        raise InputError(f"costs: expected {J} marginal costs, one per product, got {c.size}")
-    if owner is None:
-        owner = [f"firm{j + 1}" for j in range(J)]
-    owner = [str(o) for o in owner]
-    if len(owner) != J:
-        raise InputError(f"owner: expected {J} firm names, one per product, got {len(owner)}")
     firms = list(dict.fromkeys(owner))
     products = {f: [j for j in range(J) if owner[j] == f] for f in firms}
     order = np.concatenate([products[f] for f in firms])
@@ -99,10 +112,7 @@ def logit_bertrand(delta: Sequence[float], alpha: float, costs: Sequence[float],
         return {f: (lo[np.asarray(products[f])], hi[np.asarray(products[f])]) for f in firms}
 
     def consumer_surplus(x, theta):
-        # Inclusive value (Small & Rosen 1981), up to a constant: (M / alpha) log(1 + sum exp(v)).
-        v = theta["delta"] - theta["alpha"] * prices_of(x)
-        top = jnp.maximum(jnp.max(v), 0.0)
-        return theta["size"] / theta["alpha"] * (top + jnp.log(jnp.exp(-top) + jnp.sum(jnp.exp(v - top))))
+        return inclusive_value(prices_of(x), theta)
 
     game = Game(
         players={f: len(products[f]) for f in firms},
@@ -147,16 +157,8 @@ def logit_products(delta: Sequence[float], alpha: float, costs: Sequence[float],
     ``owner`` defaults to one firm per product; ``names`` name the products
     (default ``product1 ..``).
     """
-    delta = np.atleast_1d(np.asarray(delta, dtype=float))
-    c = np.atleast_1d(np.asarray(costs, dtype=float))
+    delta, c, owner = _checked(delta, costs, owner)
     J = delta.size
-    if delta.ndim != 1 or J < 1:
-        raise InputError("delta: expected a non-empty list of mean utilities, one per product")
-    if c.shape != delta.shape:
-        raise InputError(f"costs: expected {J} marginal costs, one per product, got {c.size}")
-    owner = [f"firm{j + 1}" for j in range(J)] if owner is None else [str(o) for o in owner]
-    if len(owner) != J:
-        raise InputError(f"owner: expected {J} firm names, one per product, got {len(owner)}")
     names = [f"product{j + 1}" for j in range(J)] if names is None else [str(n) for n in names]
     if len(names) != J or len(set(names)) != J:
         raise InputError(f"names: expected {J} distinct product names")
@@ -181,9 +183,7 @@ def logit_products(delta: Sequence[float], alpha: float, costs: Sequence[float],
         return {n: g[j:j + 1] for j, n in enumerate(names)}
 
     def consumer_surplus(x, theta):
-        v = theta["delta"] - theta["alpha"] * prices_of(x)
-        top = jnp.maximum(jnp.max(v), 0.0)
-        return theta["size"] / theta["alpha"] * (top + jnp.log(jnp.exp(-top) + jnp.sum(jnp.exp(v - top))))
+        return inclusive_value(prices_of(x), theta)
 
     def box(theta):
         return {n: (theta["c"][j], theta["c"][j] + LOGIT_BOX / theta["alpha"]) for j, n in enumerate(names)}
