@@ -89,3 +89,24 @@ def test_counterfactual_command_json_contract(capsys):
     assert main(["counterfactual", "models/logit_valemont_products.py", "--to", "c=[1,1,1,1]",
                  "--income", "10", "--income-elasticity", "high"]) == 2
     assert "expected a number or [low, high]" in capsys.readouterr().err
+
+
+def test_counterfactual_says_when_the_equilibrium_disappears():
+    # u = s x - x^3 / 3 with x in [-3, 3]: F = s - x^2, equilibria x = +-sqrt(s) (elementary). From
+    # s = 1 towards s = -1 the branch folds at s = 0 and turns back: no counterfactual equilibrium
+    # on the path. With the bounds, the only KKT point at s = -1 is the corner x = -3 (F < 0 there).
+    from equipoise import Game, _report
+
+    def payoffs(x, th):
+        return {"solo": th["s"] * x["solo"][0] - x["solo"][0] ** 3 / 3}
+
+    game = Game({"solo": 1}, payoffs, params={"s": 1.0}, lower={"solo": -3.0}, upper={"solo": 3.0})
+    # Baseline KKT points in solve order: the corner -3, the minimum -1 and the maximum 1.
+    r = counterfactual(game, None, {"s": -1.0}, equilibrium=2, stability=False)
+    np.testing.assert_allclose(r.baseline["x"], [1.0], atol=1e-9)
+    assert r.counterfactual is None and r.path.status == "returned"
+    assert [e.kind for e in r.path.events if e.kind == "fold"] == ["fold"]
+    fold = [e for e in r.path.events if e.kind == "fold"][0]
+    assert abs(fold.param - 0.5) < 1e-7  # path position of s = 0 on the line from 1 to -1
+    np.testing.assert_allclose([a["x"][0] for a in r.alternatives], [-3.0], atol=1e-9)
+    assert "does not continue" in _report.counterfactual_table(r, game, "solo")
