@@ -99,3 +99,17 @@ def test_statics_command_json_contract_and_errors(capsys):
     assert main(["statics", "models/bertrand_linear_teahouses.py", "--wrt", "zeta"]) == 2
     err = capsys.readouterr().err
     assert "--wrt zeta: not a parameter" in err and err.count("\n") == 1
+
+
+def test_derivatives_under_jit_and_vmap_over_parameters():
+    # Linear Cournot (common practice): dq_i/dc_i = -n / ((n + 1) b) whatever the cost level, so a
+    # vmap over cost vectors of the jitted derivative gives the same matrix at every point.
+    import jax
+
+    game = equipoise.cournot(a=100.0, b=1.0, costs=[10.0, 20.0])
+    base = game.theta()
+    costs = jnp.array([[10.0, 20.0], [12.0, 18.0], [15.0, 15.0]])
+    xs = jnp.stack([jnp.array([(100 - 2 * c1 + c2) / 3, (100 - 2 * c2 + c1) / 3]) for c1, c2 in costs])
+    run = jax.jit(jax.vmap(lambda x, c: derivatives(game, x, {**base, "c": c}, "c")))
+    D = np.asarray(run(xs, costs))
+    np.testing.assert_allclose(D, np.broadcast_to([[-2 / 3, 1 / 3], [1 / 3, -2 / 3]], (3, 2, 2)), atol=1e-12)
