@@ -154,24 +154,32 @@ def trace(game, param: str, start: float, end: float, x0, params: dict | None = 
         ``status``: ``reached_end``, ``returned`` (the branch turned back to
         ``start``), ``max_points`` or ``step_too_small``.
     """
-    base = game.theta(params)
-    if param not in base:
-        raise InputError(f"--param {param}: not a parameter of the model (has {', '.join(base) or 'none'})")
-    value = np.array(base[param], dtype=float)
-    if index is None and value.ndim != 0:
-        raise InputError(f"--param {param}: has shape {value.shape}; give an entry, e.g. {param}[0]")
-    if index is not None and (value.ndim != 1 or not 0 <= index < value.size):
-        raise InputError(f"--param {param}[{index}]: expected an index into a vector of {value.size} entries")
-    a_val, b_val = value.copy(), value.copy()
-    if index is None:
-        a_val, b_val = np.asarray(float(start)), np.asarray(float(end))
-    else:
-        a_val[index], b_val[index] = float(start), float(end)
+    a_val, b_val = with_entry(game, param, index, params, start), with_entry(game, param, index, params, end)
     label = param if index is None else f"{param}[{index}]"
     return _follow(game, {**(params or {}), param: a_val.tolist()}, {**(params or {}), param: b_val.tolist()},
                    x0, lambda lam: float(start + lam * (end - start)), f"{label} = {float(start):g}",
                    max_points=max_points, step=step, max_step=max_step, min_step=min_step,
                    event_tol=event_tol, tol=tol, stability=stability)
+
+
+def with_entry(game, param: str, index: int | None, params: dict | None, value: float) -> np.ndarray:
+    """Parameter ``param`` (at ``params``) with its value, or entry ``index``, set to ``value``.
+
+    One clear line when ``param`` is not a parameter or ``index`` does not fit its shape.
+    """
+    base = game.theta(params)
+    if param not in base:
+        where = f" of {game.source}" if game.source else " of the model"
+        raise InputError(f"--param {param}: not a parameter{where} (has {', '.join(base) or 'none'})")
+    out = np.array(base[param], dtype=float)
+    if index is None and out.ndim != 0:
+        raise InputError(f"--param {param}: has shape {out.shape}; give an entry, e.g. {param}[0]")
+    if index is not None and (out.ndim != 1 or not 0 <= index < out.size):
+        raise InputError(f"--param {param}[{index}]: expected an index into a vector of {out.size} entries")
+    if index is None:
+        return np.asarray(float(value))
+    out[index] = float(value)
+    return out
 
 
 def trace_between(game, x0, start_params: dict, end_params: dict, **options) -> Branch:

@@ -11,8 +11,6 @@ import os
 import re
 import sys
 
-import numpy as np
-
 from . import _report
 from ._errors import InputError
 
@@ -107,7 +105,7 @@ _PARAM = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[\s*(\d+)\s*\])?\s*$")
 
 
 def _cmd_trace(args) -> int:
-    from ._continuation import trace
+    from ._continuation import trace, with_entry
     from ._loader import load_game
     from ._solve import solve
 
@@ -117,19 +115,7 @@ def _cmd_trace(args) -> int:
     name, index = m.group(1), None if m.group(2) is None else int(m.group(2))
     game = load_game(args.model)
     params = _parse_sets(args.set or [])
-    base = game.theta(params)
-    if name not in base:
-        raise InputError(f"--param {name}: not a parameter of {args.model} (has {', '.join(base) or 'none'})")
-    value = np.array(base[name], dtype=float)
-    if index is None and value.ndim != 0:
-        raise InputError(f"--param {name}: has shape {value.shape}; give an entry, e.g. {name}[0]")
-    if index is not None and (value.ndim != 1 or index >= value.size):
-        raise InputError(f"--param {name}[{index}]: expected an index into a vector of {value.size} entries")
-    if index is None:
-        value = np.asarray(args.start)
-    else:
-        value[index] = args.start
-    at_start = {**params, name: value.tolist()}
+    at_start = {**params, name: with_entry(game, name, index, params, args.start).tolist()}
     solution = solve(game, at_start, starts=args.starts, seed=args.seed, stability=False,
                      all_equilibria=args.all)
     chosen = solution.equilibria
