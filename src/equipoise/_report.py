@@ -338,3 +338,32 @@ def counterfactual_table(result, game, model: str) -> str:
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+def sweep_dict(result) -> dict[str, Any]:
+    """JSON summary of a sweep run (the rows themselves are in the store)."""
+    return {"store": result.store, "points": result.points, "stored": result.stored, "computed": result.computed,
+            "complete": result.complete, "interrupted": result.interrupted, "counts": dict(result.counts),
+            "verdicts": {k: dict(v) for k, v in result.verdicts.items()}, "seconds": result.seconds,
+            "stats": dict(result.stats), "caution": CAUTION}
+
+
+def sweep_summary(result) -> str:
+    """Plain-words summary of a sweep run."""
+    c = result.counts
+    lines = [f"store: {result.store}",
+             f"points: {result.stored} of {result.points} stored ({result.computed} computed in this run, "
+             f"{result.seconds:.1f} s)",
+             f"  solved {c.get('solved', 0)}, no equilibrium found {c.get('no_equilibrium', 0)}, "
+             f"failed {c.get('failed', 0)}; equilibria stored {c.get('equilibria', 0)}"]
+    names = {"nash": "Nash label", "equal_speeds": "equal speeds", "player_speeds": "per-player speeds",
+             "coordinate_speeds": "per-coordinate speeds"}
+    for key, label in names.items():
+        counts = result.verdicts.get(key) or {}
+        if counts:
+            lines.append(f"  {label}: " + ", ".join(f"{v} {k}" for k, v in sorted(counts.items())))
+    if result.interrupted:
+        lines.append(f"interrupted: {result.stored} of {result.points} points are stored; "
+                     "run the same command again to resume")
+    lines += ["", CAUTION]
+    return "\n".join(lines)

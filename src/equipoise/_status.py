@@ -52,3 +52,22 @@ class Nash(_Coded):
     global_ = "global"
     local = "local"
     not_nash = "not_nash"
+
+
+class PointStatus(_Coded):
+    """Outcome of one point of a sweep; the value is the message shown to users.
+
+    ``solved``: at least one equilibrium passed verification (not ``not_nash``);
+    ``no_equilibrium``: no start converged to one (first-order points that
+    failed verification are still stored, marked); ``failed``: the point could
+    not be solved at all (a non-finite search region or non-finite payoffs
+    everywhere); the store keeps the reason.
+    """
+
+    solved = ""
+    no_equilibrium = "no start converged to a point that passed verification"
+    failed = "the point could not be solved"
+
+    @property
+    def message(self) -> str:
+        return self.value or "solved"

@@ -7,14 +7,15 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import re
 import sys
 
 from . import _report
+from ._compile_cache import use_compile_cache
 from ._errors import InputError
 
 EXIT_INPUT = 2
+EXIT_INTERRUPTED = 130
 
 
 class _Parser(argparse.ArgumentParser):
@@ -45,17 +46,6 @@ def _numeric(value) -> bool:
     if isinstance(value, list):
         return all(_numeric(v) for v in value)
     return isinstance(value, (int, float))
-
-
-def _use_compile_cache() -> None:
-    """Keep compiled solvers between runs (set EQUIPOISE_CACHE=off to disable)."""
-    where = os.environ.get("EQUIPOISE_CACHE", os.path.join(os.path.expanduser("~"), ".cache", "equipoise", "jax"))
-    if where.lower() in ("", "0", "off", "none"):
-        return
-    import jax
-
-    jax.config.update("jax_compilation_cache_dir", where)
-    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.2)
 
 
 def _run_solve(game, model: str, args) -> int:
@@ -180,6 +170,79 @@ def _cmd_counterfactual(args) -> int:
     return 0
 
 
+def _cmd_sweep(args) -> int:
+    from .sweeps import load_spec, sweep
+    from .sweeps._spec import SweepSpec, spec_from_flags
+
+    flags = {"--axis": args.axis, "--set": args.set, "--sample": args.sample, "--sample-seed": args.sample_seed,
+             "--starts": args.starts, "--seed": args.seed, "--all": args.all or None, "--labels": args.labels,
+             "--deviation-starts": args.deviation_starts, "--batch": args.batch}
+    if args.target.endswith(".toml"):
+        given = [k for k, v in flags.items() if v is not None]
+        if given:
+            raise InputError(f"{args.target}: {given[0]} cannot be combined with a sweep file; "
+                             "write it in the file instead")
+        spec, store = load_spec(args.target)
+        store = args.store or store or args.target[: -len(".toml")] + ".sqlite"
+    else:
+        if not args.axis:
+            raise InputError(f"{args.target}: expected a sweep file (.toml) or a model file with --axis "
+                             "NAME=START:STOP:NUM (repeatable)")
+        if not args.store:
+            raise InputError("--store: expected the path of the results store, e.g. --store sweep.sqlite")
+        defaults = {f.name: f.default for f in SweepSpec.__dataclass_fields__.values()}
+        settings = {key: (defaults[key] if getattr(args, key) is None else getattr(args, key))
+                    for key in ("sample_seed", "starts", "seed", "labels", "deviation_starts", "batch")}
+        spec = spec_from_flags(args.target, args.axis, _parse_sets(args.set or []), args.sample,
+                               all_equilibria=bool(args.all), **settings)
+        store = args.store
+    result = sweep(spec, store, engine=args.engine, workers=args.workers, scheduler=args.scheduler, new=args.new,
+                   progress=not args.quiet)
+    if args.json:
+        json.dump(_report.sweep_dict(result), sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(_report.sweep_summary(result))
+    return EXIT_INTERRUPTED if result.interrupted else 0
+
+
+def _cmd_export(args) -> int:
+    from .sweeps import Store
+
+    store = Store.read(args.store)
+    try:
+        rows = store.export_csv(args.csv)
+    finally:
+        store.close()
+    print(f"wrote {rows} rows to {args.csv}")
+    return 0
+
+
+def _parse_size(text: str) -> tuple[int, int]:
+    m = re.match(r"^\s*(\d+)\s*[xX]\s*(\d+)\s*$", text or "")
+    if not m or not (100 <= int(m.group(1)) <= 10000 and 100 <= int(m.group(2)) <= 10000):
+        raise InputError(f"--size {text!r}: expected WIDTHxHEIGHT in pixels, each from 100 to 10000, e.g. 900x650")
+    return int(m.group(1)), int(m.group(2))
+
+
+def _cmd_plot(args) -> int:
+    from .sweeps import plot_store
+
+    at = {}
+    for item in args.at or []:
+        name, sep, text = item.partition("=")
+        try:
+            at[name.strip()] = float(text)
+        except ValueError:
+            raise InputError(f"--at {item!r}: expected NAME=VALUE with a number, e.g. --at a=100") from None
+        if not sep or not name.strip():
+            raise InputError(f"--at {item!r}: expected NAME=VALUE, e.g. --at a=100")
+    out = plot_store(args.store, args.out, x=args.x, y=args.y, color=args.color, actions=args.action or None,
+                     at=at or None, size=_parse_size(args.size))
+    print(f"wrote {out}")
+    return 0
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -227,6 +290,49 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--income-elasticity", metavar="ETA", help="a number or [low, high], for Willig's bound")
     _solve_options(p)
     p.set_defaults(func=_cmd_counterfactual)
+    p = sub.add_parser("sweep", help="solve, verify and label every point of a parameter grid into a store")
+    p.add_argument("target", metavar="SPEC.toml|MODEL.py",
+                   help="a sweep file (TOML), or a model file with --axis flags")
+    p.add_argument("--store", metavar="FILE", help="the SQLite results store (created, or resumed if it exists)")
+    p.add_argument("--engine", choices=("inprocess", "processes", "dask"), default="inprocess",
+                   help="where batches run (default inprocess)")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="a running Dask scheduler (with --engine dask); "
+                   "without it a local cluster is started")
+    p.add_argument("--workers", type=int, metavar="N", help="worker processes (default: number of cores)")
+    p.add_argument("--new", action="store_true",
+                   help="if the store holds another sweep, keep it aside under a new name and start afresh")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
+    g = p.add_argument_group("sweep from flags (with a model file)")
+    g.add_argument("--axis", action="append", metavar="NAME=START:STOP:NUM",
+                   help="an axis: NAME or NAME[INDEX] = START:STOP:NUM[:log], or = [v1,v2,...]; with --sample, "
+                        "= LOW:HIGH[:log] (repeatable)")
+    g.add_argument("--set", action="append", metavar="NAME=VALUE", help="a fixed parameter value (repeatable)")
+    g.add_argument("--sample", type=int, metavar="N", help="N Sobol points of the axes' box instead of the grid")
+    g.add_argument("--sample-seed", type=int, metavar="S", help="seed of that sample (default 0)")
+    g.add_argument("--starts", type=int, metavar="N", help="Sobol starts per point (default 8)")
+    g.add_argument("--seed", type=int, metavar="S", help="seed of the starts and deviation search (default 0)")
+    g.add_argument("--all", action="store_true", help="deflation rounds at every point (all equilibria)")
+    g.add_argument("--labels", choices=("full", "equal", "none"), help="stability labels (default full)")
+    g.add_argument("--deviation-starts", type=int, metavar="N", help="deviation-check starts per player (default 8)")
+    g.add_argument("--batch", type=int, metavar="N", help="points per batch (default 64)")
+    p.set_defaults(func=_cmd_sweep)
+    p = sub.add_parser("export", help="write a results store as CSV")
+    p.add_argument("store", help="a results store written by equipoise sweep")
+    p.add_argument("--csv", required=True, metavar="FILE", help="the CSV file to write")
+    p.set_defaults(func=_cmd_export)
+    p = sub.add_parser("plot", help="draw a results store: a map over two axes, or actions over one")
+    p.add_argument("store", help="a results store written by equipoise sweep")
+    p.add_argument("--x", required=True, metavar="AXIS", help="the horizontal axis (an axis name of the sweep)")
+    p.add_argument("--y", metavar="AXIS", help="the vertical axis for a map; without it, actions against --x")
+    p.add_argument("--color", default="coordinate_speeds",
+                   choices=("coordinate_speeds", "player_speeds", "equal_speeds", "nash", "count"),
+                   help="what the colours show (default coordinate_speeds)")
+    p.add_argument("--action", action="append", metavar="NAME", help="an action to draw against --x (repeatable)")
+    p.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis of the sweep (repeatable)")
+    p.add_argument("--size", default="900x650", metavar="WxH", help="picture size in pixels (default 900x650)")
+    p.add_argument("--out", required=True, metavar="FILE.png", help="the PNG file to write")
+    p.set_defaults(func=_cmd_plot)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)
@@ -235,20 +341,27 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
-    if getattr(args, "starts", 1) < 1:
-        print(f"equipoise {args.command}: error: --starts: expected a positive whole number, got {args.starts}",
-              file=sys.stderr)
-        return EXIT_INPUT
-    if getattr(args, "seed", 0) < 0:
-        print(f"equipoise {args.command}: error: --seed: expected a non-negative whole number, got {args.seed}",
-              file=sys.stderr)
-        return EXIT_INPUT
-    _use_compile_cache()
+    for flag in ("starts", "workers", "sample", "deviation_starts", "batch"):
+        value = getattr(args, flag, None)
+        if value is not None and value < 1:
+            print(f"equipoise {args.command}: error: --{flag.replace('_', '-')}: expected a positive whole number, "
+                  f"got {value}", file=sys.stderr)
+            return EXIT_INPUT
+    for flag in ("seed", "sample_seed"):
+        value = getattr(args, flag, None)
+        if value is not None and value < 0:
+            print(f"equipoise {args.command}: error: --{flag.replace('_', '-')}: expected a non-negative whole "
+                  f"number, got {value}", file=sys.stderr)
+            return EXIT_INPUT
+    use_compile_cache()
     try:
         return args.func(args)
     except InputError as exc:
         print(f"equipoise {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_INPUT
+    except KeyboardInterrupt:
+        print(f"equipoise {args.command}: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
     except BrokenPipeError:  # output piped into a reader that stopped early
         sys.stderr.close()
         return 0

@@ -1,0 +1,17 @@
+"""JAX's persistent compilation cache, for the command line and its worker processes."""
+
+from __future__ import annotations
+
+import os
+
+
+def use_compile_cache() -> None:
+    """Keep compiled solvers between runs in ``EQUIPOISE_CACHE`` (default ``~/.cache/equipoise/jax``;
+    ``off`` disables)."""
+    where = os.environ.get("EQUIPOISE_CACHE", os.path.join(os.path.expanduser("~"), ".cache", "equipoise", "jax"))
+    if where.lower() in ("", "0", "off", "none"):
+        return
+    import jax
+
+    jax.config.update("jax_compilation_cache_dir", where)
+    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.2)
