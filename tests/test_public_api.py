@@ -11,6 +11,11 @@ import equipoise.families
 
 # The agreed public API. A change here is an API change: update on purpose.
 PUBLIC = {
+    "Axis",
+    "PointStatus",
+    "SweepResult",
+    "SweepSpec",
+    "sweep",
     "Branch",
     "Counterfactual",
     "BranchPoint",
@@ -58,7 +63,7 @@ def test_every_public_name_imports():
 
 
 def test_public_submodules_exist():
-    assert {"families", "cli"} <= SUBMODULES
+    assert {"families", "cli", "stability", "sweeps"} <= SUBMODULES
 
 
 def test_nothing_private_leaks():
@@ -83,6 +88,15 @@ def test_families_reexport():
                                                "merged_ownership", "ownership_matrix"}
     for name in equipoise.families.__all__:
         assert getattr(equipoise, name) is getattr(equipoise.families, name)
+
+
+def test_sweeps_reexport():
+    import equipoise.sweeps
+
+    assert set(equipoise.sweeps.__all__) == {"Axis", "Store", "SweepResult", "SweepSpec", "load_spec", "plot_store",
+                                             "sweep"}
+    for name in ("Axis", "SweepResult", "SweepSpec", "sweep"):
+        assert getattr(equipoise, name) is getattr(equipoise.sweeps, name)
 
 
 def test_version_matches_distribution():

@@ -262,3 +262,29 @@ def test_bad_spec_is_one_clear_line(tmp_path, edit, message):
         sweep(spec, tmp_path / "x.sqlite", progress=False)
     assert str(info.value).startswith(str(path)) and "\n" not in str(info.value)
     assert not (tmp_path / "x.sqlite").exists()
+
+
+def test_speed_verdicts_over_a_grid_match_the_3x3_criterion(tmp_path):
+    # Water-draw game with constant Jacobian J = -[[1, k, 0], [0, 1, k], [k, 0, d3]].
+    # Cain (1976), "Real, 3x3, D-stable matrices", J. Res. NBS 80B (criterion from memory, as stated
+    # in the references): B = -J is D-stable iff B in P0+ and
+    # sqrt(b11 B23) + sqrt(b22 B13) + sqrt(b33 B12) >= sqrt(det B); here that is
+    # 3 sqrt(d3) >= sqrt(d3 + k^3), i.e. k^3 <= 8 d3. Equal speeds: the sign of max Re eig(J) (numpy).
+    spec = SweepSpec("models/cycle_three_districts.py",
+                     axes=(Axis.linear("k", 0.5, 6.0, 6), Axis.linear("d[2]", 1.0, 10.0, 5)), starts=2, batch=32)
+    sweep(spec, tmp_path / "q.sqlite", progress=False)
+    with Store.read(tmp_path / "q.sqlite") as db:
+        points, eqs = db.points(), db.equilibria()
+    seen = set()
+    for p, e in zip(points, eqs):
+        k, d3 = p["values"]
+        J = -np.array([[1.0, k, 0.0], [0.0, 1.0, k], [k, 0.0, d3]])
+        np.testing.assert_allclose(e["actions"], np.linalg.solve(-J, [6.0, 5.0, 7.0]), rtol=1e-9, atol=1e-9)
+        top = np.max(np.linalg.eigvals(J).real)
+        assert e["equal_speeds"] == ("stable" if top < 0 else "unstable")
+        assert e["equal_abscissa"] == pytest.approx(top, abs=1e-9)
+        if abs(k ** 3 - 8 * d3) > 0.01 * 8 * d3:
+            want = "robust" if k ** 3 < 8 * d3 else "fragile"
+            assert e["coordinate_speeds"] == want and e["player_speeds"] == want, (k, d3)
+            seen.add(want)
+    assert seen == {"robust", "fragile"}

@@ -15,15 +15,17 @@ from ._homotopy import homotopy  # noqa: E402
 from ._loader import load_game  # noqa: E402
 from ._newton import RootResult, newton_solve  # noqa: E402
 from ._solve import Equilibrium, Solution, solve  # noqa: E402
-from ._status import Nash, Status  # noqa: E402
+from ._status import Nash, PointStatus, Status  # noqa: E402
 from ._verify import Verification, verify  # noqa: E402
 from ._counterfactual import Counterfactual, counterfactual  # noqa: E402
+from .sweeps import Axis, SweepResult, SweepSpec, sweep  # noqa: E402
 from .families import (  # noqa: E402
     cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership, ownership_matrix)
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "Axis",
     "Branch",
     "Counterfactual",
     "BranchPoint",
@@ -32,9 +34,12 @@ __all__ = [
     "Game",
     "InputError",
     "Nash",
+    "PointStatus",
     "RootResult",
     "Solution",
     "Status",
+    "SweepResult",
+    "SweepSpec",
     "Verification",
     "counterfactual",
     "cournot",
@@ -47,6 +52,7 @@ __all__ = [
     "newton_solve",
     "ownership_matrix",
     "solve",
+    "sweep",
     "trace",
     "trace_between",
     "verify",

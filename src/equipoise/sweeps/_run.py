@@ -134,7 +134,7 @@ def sweep(spec: SweepSpec, store: str | os.PathLike, *, engine: str = "inprocess
     _check_first_point(game, spec, base)
     fingerprint = spec.fingerprint(text)
     players = dict(zip(game.players, game.sizes))
-    db = Store.create_or_resume(store, fingerprint=fingerprint, spec=spec.to_dict(), model=spec.model,
+    db = Store.create_or_resume(store, fingerprint=fingerprint, spec=spec.to_dict(), model=os.path.abspath(spec.model),
                                 players=players, coordinates=[game.coordinate_name(k) for k in range(game.n)],
                                 new=new)
     try:
