@@ -108,6 +108,7 @@ def test_plot_command_writes_a_png_of_the_requested_size(swept, tmp_path, capsys
 
     folder, spec = swept
     main(["sweep", str(spec), "--quiet"])
+    capsys.readouterr()
     target = tmp_path / "map.png"
     assert main(["plot", str(folder / "ferries.sqlite"), "--x", "c[2]", "--y", "a", "--size", "640x480",
                  "--out", str(target)]) == 0
