@@ -17,7 +17,7 @@ FERRIES = os.path.abspath("models/cournot_saltmere_ferries.py")
 
 def rows(path):
     with Store.read(path) as db:
-        return db.points(), db.equilibria()
+        return db.points(), db.equilibria(stability=True)
 
 
 @pytest.fixture(scope="module")

@@ -130,13 +130,18 @@ class Store:
         return [{"id": row[0], "values": list(row[1:1 + len(axes)]), "status": row[-3], "reason": row[-2],
                  "equilibria": row[-1]} for row in self._query(q)]
 
-    def equilibria(self) -> list[dict]:
-        """Every stored equilibrium, ordered by point and rank, decoded."""
+    def equilibria(self, stability: bool = False) -> list[dict]:
+        """Every stored equilibrium, ordered by point and rank, decoded.
+
+        The full stability object (certificates included) is decoded only with
+        ``stability=True``; otherwise ``e["stability"]`` is None.
+        """
+        cols = _EQ_COLUMNS if stability else _EQ_COLUMNS[:-1]
         out = []
-        for row in self._query(f"SELECT {', '.join(_EQ_COLUMNS)} FROM equilibria ORDER BY point, k"):
-            e = dict(zip(_EQ_COLUMNS, row))
+        for row in self._query(f"SELECT {', '.join(cols)} FROM equilibria ORDER BY point, k"):
+            e = dict(zip(cols, row))
             for key in ("actions", "payoffs", "stability"):
-                e[key] = None if e[key] is None else json.loads(e[key])
+                e[key] = None if e.get(key) is None else json.loads(e[key])
             e["hicksian"] = None if e["hicksian"] is None else bool(e["hicksian"])
             out.append(e)
         return out
