@@ -64,6 +64,12 @@ def test_cournot_sweep_matches_the_closed_form_at_every_point(ferry_sweep):
         # -b(I + 11') on the free coordinates has largest eigenvalue -b.
         assert e["equal_abscissa"] == pytest.approx(-1.5, rel=1e-9)
         assert e["stability"]["coordinate_speeds"]["verdict"] == "robust" and free in (2, 3)
+        # Theocharis (1960), Review of Economic Studies 27(2): simultaneous best responses in linear
+        # Cournot have spectral radius (n - 1) / 2 for n active firms: 1 (neutral) for 3, 1/2 for 2.
+        assert e["best_response_radius"] == pytest.approx((free - 1) / 2, rel=1e-9)
+        # Largest stable step of discrete gradient play, 2 / |lambda_max|, with lambda_max = -b (n + 1)
+        # the extreme eigenvalue of -b (I + 11') (common practice for x + eta F(x) with symmetric J).
+        assert e["learning_rate_limit"] == pytest.approx(2 / (1.5 * (free + 1)), rel=1e-9)
 
 
 def test_csv_export_names_columns_as_given(ferry_sweep, tmp_path):

@@ -157,7 +157,7 @@ def _free_blocks(game, free: np.ndarray) -> tuple[int, ...]:
 def _labels(game, checked: list, kind: str, batch: int) -> list[dict[str, Any]]:
     """Stability fields per verified pair; stacks grouped by free-coordinate pattern and labelled together."""
     empty = {"equal_speeds": None, "equal_abscissa": None, "player_speeds": None, "coordinate_speeds": None,
-             "hicksian": None, "stability": None}
+             "hicksian": None, "learning_rate_limit": None, "best_response_radius": None, "stability": None}
     out = [dict(empty) for _ in checked]
     if kind == "none" or not checked:
         return out
@@ -172,7 +172,8 @@ def _labels(game, checked: list, kind: str, batch: int) -> list[dict[str, Any]]:
                 d = rep.to_dict()
                 out[i].update(equal_speeds=d["equal_speeds"]["verdict"], equal_abscissa=d["equal_speeds"]["abscissa"],
                               player_speeds=rep.player_speeds.verdict, coordinate_speeds=rep.coordinate_speeds.verdict,
-                              hicksian=rep.hicksian, stability=d)
+                              hicksian=rep.hicksian, learning_rate_limit=rep.learning_rate_limit,
+                              best_response_radius=rep.best_response["spectral_radius"], stability=d)
         else:
             for i, (verdict, abscissa) in zip(idx, equal_labels(Js)):
                 out[i].update(equal_speeds=verdict, equal_abscissa=abscissa,

@@ -27,10 +27,11 @@ from typing import Any
 
 from .._errors import InputError
 
-FORMAT = "equipoise-sweep-1"
+FORMAT = "equipoise-sweep-2"
 
 _EQ_COLUMNS = ("point", "k", "actions", "payoffs", "residual", "nash", "starts", "equal_speeds", "equal_abscissa",
-               "player_speeds", "coordinate_speeds", "hicksian", "stability")
+               "player_speeds", "coordinate_speeds", "hicksian", "learning_rate_limit", "best_response_radius",
+               "stability")
 
 
 def _quote(name: str) -> str:
@@ -173,13 +174,14 @@ class Store:
         ``equilibrium`` (1-based rank), one per action (``player`` or
         ``player[k]``), ``payoff[player]`` per player, ``residual``, ``nash``,
         ``equal_speeds``, ``equal_abscissa``, ``player_speeds``,
-        ``coordinate_speeds``, ``hicksian``, ``reason``. Returns the number of rows.
+        ``coordinate_speeds``, ``hicksian``, ``learning_rate_limit``,
+        ``best_response_radius``, ``reason``. Returns the number of rows.
         """
         target = os.fspath(target)
         axes, coords, players = self.meta["axes"], self.meta["coordinates"], list(self.meta["players"])
         header = (["point"] + axes + ["status", "equilibrium"] + coords + [f"payoff[{p}]" for p in players]
                   + ["residual", "nash", "equal_speeds", "equal_abscissa", "player_speeds", "coordinate_speeds",
-                     "hicksian", "reason"])
+                     "hicksian", "learning_rate_limit", "best_response_radius", "reason"])
         by_point: dict[int, list[dict]] = {}
         for e in self.equilibria():
             by_point.setdefault(e["point"], []).append(e)
@@ -203,6 +205,7 @@ class Store:
                                       _num(e["equal_abscissa"]), e["player_speeds"] or "",
                                       e["coordinate_speeds"] or "",
                                       "" if e["hicksian"] is None else str(e["hicksian"]).lower(),
+                                      _num(e["learning_rate_limit"]), _num(e["best_response_radius"]),
                                       p["reason"] or ""])
                     rows += 1
         return rows
@@ -215,7 +218,7 @@ def _num(v) -> str:
 def _eq_row(point: int, k: int, e: dict) -> tuple:
     return (point, k, json.dumps(e["actions"]), json.dumps(e["payoffs"]), e["residual"], e["nash"], e["starts"],
             e["equal_speeds"], e["equal_abscissa"], e["player_speeds"], e["coordinate_speeds"],
-            None if e["hicksian"] is None else int(e["hicksian"]),
+            None if e["hicksian"] is None else int(e["hicksian"]), e["learning_rate_limit"], e["best_response_radius"],
             None if e["stability"] is None else json.dumps(e["stability"]))
 
 
@@ -250,9 +253,11 @@ def _create(conn: sqlite3.Connection, fingerprint: str, spec: dict, model: str, 
         conn.execute("CREATE TABLE equilibria (point INTEGER NOT NULL REFERENCES points(id), k INTEGER NOT NULL, "
                      "actions TEXT NOT NULL, payoffs TEXT NOT NULL, residual REAL, nash TEXT NOT NULL, "
                      "starts INTEGER, equal_speeds TEXT, equal_abscissa REAL, player_speeds TEXT, "
-                     "coordinate_speeds TEXT, hicksian INTEGER, stability TEXT, PRIMARY KEY (point, k))")
+                     "coordinate_speeds TEXT, hicksian INTEGER, learning_rate_limit REAL, best_response_radius REAL, "
+                     "stability TEXT, PRIMARY KEY (point, k))")
         conn.execute("CREATE VIEW results AS SELECT p.*, e.k, e.actions, e.payoffs, e.residual, e.nash, "
-                     "e.equal_speeds, e.equal_abscissa, e.player_speeds, e.coordinate_speeds, e.hicksian "
+                     "e.equal_speeds, e.equal_abscissa, e.player_speeds, e.coordinate_speeds, e.hicksian, "
+                     "e.learning_rate_limit, e.best_response_radius "
                      "FROM points p LEFT JOIN equilibria e ON e.point = p.id")
         meta = {"format": FORMAT, "fingerprint": fingerprint, "spec": spec, "model": model, "axes": axes,
                 "players": players, "coordinates": coordinates,
