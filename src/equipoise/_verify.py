@@ -140,29 +140,34 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_sta
     def payoff_i(y, i):
         return game.payoff_vector(y, theta)[i]
 
-    grad_i = jax.grad(payoff_i)
+    value_grad_i = jax.value_and_grad(payoff_i)
 
     def ascend(i, start):
         mine = owner == i
         y0 = jnp.where(mine, start, x)
         width = jnp.where(mine, hi - lo, 0.0)
 
+        def own_gradient(y):
+            u, g = value_grad_i(y, i)
+            g = jnp.where(mine, g, 0.0)
+            return u, jnp.where(jnp.isfinite(g), g, 0.0)
+
+        # Each step evaluates payoff and gradient once, at the trial point; an accepted
+        # trial's gradient is the next step's direction.
         def step(_, c):
-            y, u, eta = c
-            g = jnp.where(mine, grad_i(y, i), 0.0)
-            g = jnp.where(jnp.isfinite(g), g, 0.0)
+            y, u, g, eta = c
             y_try = jnp.where(mine, jnp.clip(y + eta * g, lo, hi), y)
-            u_try = payoff_i(y_try, i)
+            u_try, g_try = own_gradient(y_try)
             ok = jnp.isfinite(u_try) & (u_try >= u + 1e-4 * (g @ (y_try - y)))
             ok = ok & jnp.any(y_try != y)
-            return (jnp.where(ok, y_try, y), jnp.where(ok, u_try, u), jnp.where(ok, 2.0 * eta, 0.25 * eta))
+            return (jnp.where(ok, y_try, y), jnp.where(ok, u_try, u), jnp.where(ok, g_try, g),
+                    jnp.where(ok, 2.0 * eta, 0.25 * eta))
 
-        g0 = jnp.where(mine, grad_i(y0, i), 0.0)
-        gnorm = jnp.max(jnp.abs(jnp.where(jnp.isfinite(g0), g0, 0.0)))
+        u0, g0 = own_gradient(y0)
+        gnorm = jnp.max(jnp.abs(g0))
         eta0 = 0.1 * jnp.max(width) / (gnorm + 1e-12)
-        u0 = payoff_i(y0, i)
         u0 = jnp.where(jnp.isfinite(u0), u0, -jnp.inf)
-        y, u, _ = lax.fori_loop(0, ascent_steps, step, (y0, u0, eta0))
+        y, u, _, _ = lax.fori_loop(0, ascent_steps, step, (y0, u0, g0, eta0))
         return y, u
 
     def search(i):

@@ -77,53 +77,53 @@ def solve_batch(game, spec, base: dict[str, np.ndarray], indices: np.ndarray, va
     x0 = lo[:, None, :] + (hi - lo)[:, None, :] * unit[None]
     with user_code(game, "payoffs"):
         out = jax.tree.map(np.asarray, newton(jnp.asarray(x0), th))
-    found: list[list[np.ndarray]] = [[] for _ in range(B)]
-    resid: list[list[float]] = [[] for _ in range(B)]
-    _collect(out, found, resid)
-    outcomes = [dict(zip(*np.unique(out.status[p], return_counts=True))) for p in range(B)]
+    found, resid = _converged(out, count)
+    statuses = out.status[:count]
 
-    roots = [distinct(np.array(found[p]).reshape(-1, n), np.array(resid[p]), DEDUP_TOL) for p in range(count)]
+    roots = [_distinct(found[p], resid[p]) for p in range(count)]
     if count > 1 and len({len(r) for r in roots}) > 1:
         warm = _warm_starts(roots, x0[:, 0, :], B)
         with user_code(game, "payoffs"):
             out2 = jax.tree.map(np.asarray, newton(jnp.asarray(warm), th))
-        _collect(out2, found, resid)
-        roots = [distinct(np.array(found[p]).reshape(-1, n), np.array(resid[p]), DEDUP_TOL) for p in range(count)]
+        more, more_res = _converged(out2, count)
+        found = [np.concatenate([a, b]) for a, b in zip(found, more)]
+        resid = [np.concatenate([a, b]) for a, b in zip(resid, more_res)]
+        roots = [_distinct(found[p], resid[p]) for p in range(count)]
     if spec.all_equilibria:
-        for p in range(count):
-            if not region_ok[p]:
-                continue
+        for p in np.nonzero(region_ok[:count])[0]:
             th_p = {k: jnp.asarray(v[p]) for k, v in thetas.items()}
-            pts = np.array(found[p]).reshape(-1, n)
-            extra, extra_res, _ = _deflate(game, th_p, x0[p], pts, np.array(resid[p]), DEFLATION_ROUNDS,
+            extra, extra_res, _ = _deflate(game, th_p, x0[p], found[p], resid[p], DEFLATION_ROUNDS,
                                            DEDUP_TOL, dict(NEWTON))
-            roots[p] = distinct(np.concatenate([pts, extra]), np.concatenate([np.array(resid[p]), extra_res]),
-                                DEDUP_TOL)
+            roots[p] = _distinct(np.concatenate([found[p], extra]), np.concatenate([resid[p], extra_res]))
 
-    pairs = [(p, x, c) for p in range(count) if region_ok[p] for x, c in roots[p]]
-    checked = _verify_pairs(checker, thetas, pairs, spec, n) if pairs else []
-    labels = _labels(game, checked, spec.labels, int(spec.batch))
+    owners = np.array([p for p in range(count) if region_ok[p] for _ in roots[p]], dtype=int)
+    xs = np.array([x for p in range(count) if region_ok[p] for x, _ in roots[p]]).reshape(-1, n)
+    hits = [c for p in range(count) if region_ok[p] for _, c in roots[p]]
+    v, u = _verify_pairs(checker, thetas, owners, xs, spec) if len(owners) else (None, None)
+    labels = _labels(game, v, len(owners), spec.labels, B)
+    nash = [m.value for m in Nash]
+    eqs_of: list[list[dict]] = [[] for _ in range(count)]
+    for k, p in enumerate(owners):
+        eqs_of[p].append({"actions": xs[k].tolist(), "payoffs": u[k].tolist(), "residual": float(v.residual[k]),
+                          "nash": nash[int(v.label[k])], "starts": int(hits[k]), **labels[k]})
     records = []
-    i = 0
     for p in range(count):
-        eqs = []
-        for _ in range(len(roots[p]) if region_ok[p] else 0):
-            (v, u), (x, c), lab = checked[i], pairs[i][1:], labels[i]
-            eqs.append({"actions": [float(a) for a in x], "payoffs": [float(a) for a in u],
-                        "residual": float(v.residual), "nash": Nash.from_code(v.label).value, "starts": int(c),
-                        **lab})
-            i += 1
-        status, reason = _status(region_ok[p], eqs, outcomes[p], game, lo[p], hi[p])
-        records.append({"index": int(indices[p]), "values": [float(a) for a in values[p]], "status": status.name,
-                        "reason": reason, "equilibria": eqs})
+        status, reason = _status(bool(region_ok[p]), eqs_of[p], statuses[p])
+        records.append({"index": int(indices[p]), "values": values[p].tolist(), "status": status.name,
+                        "reason": reason, "equilibria": eqs_of[p]})
     return records
 
 
-def _collect(out, found, resid) -> None:
+def _converged(out, count: int) -> tuple[list[np.ndarray], list[np.ndarray]]:
+    """Per point: the converged end points ``(k, n)`` and their residuals."""
     ok = out.status == Status.success.code
-    for p in range(len(found)):
-        found[p] += list(out.x[p][ok[p]])
-        resid[p] += list(out.residual[p][ok[p]])
+    return [out.x[p][ok[p]] for p in range(count)], [out.residual[p][ok[p]] for p in range(count)]
+
+
+def _distinct(points: np.ndarray, residuals: np.ndarray) -> list[tuple[np.ndarray, int]]:
+    if points.shape[0] <= 1:  # the common case of one start or one converged run: nothing to merge
+        return [(points[0], 1)] if points.shape[0] else []
+    return distinct(points, residuals, DEDUP_TOL)
 
 
 def _warm_starts(roots, filler: np.ndarray, starts: int) -> np.ndarray:
@@ -138,15 +138,15 @@ def _warm_starts(roots, filler: np.ndarray, starts: int) -> np.ndarray:
     return out
 
 
-def _verify_pairs(checker, thetas, pairs, spec, n) -> list:
-    size = 1 << max(0, (len(pairs) - 1).bit_length())
-    size = max(size, int(spec.batch))  # few shapes: the batch size, then powers of two
-    idx = _pad(np.array([p for p, _, _ in pairs]), size)
-    xs = _pad(np.array([x for _, x, _ in pairs]), size)
+def _verify_pairs(checker, thetas, owners: np.ndarray, xs: np.ndarray, spec):
+    """Verification and payoffs of every (point, root) pair, batched: arrays with a leading pair axis."""
+    count = len(owners)
+    size = max(int(spec.batch), 1 << max(0, (count - 1).bit_length()))  # few shapes
+    idx = _pad(owners, size)
     th = {k: jnp.asarray(v[idx]) for k, v in thetas.items()}
-    unit = jnp.asarray(unit_sample(int(spec.deviation_starts), n, int(spec.seed) + 1))
-    v, u = jax.tree.map(np.asarray, checker(jnp.asarray(xs), th, unit))
-    return [(jax.tree.map(lambda a, k=k: a[k], v), u[k]) for k in range(len(pairs))]
+    unit = jnp.asarray(unit_sample(int(spec.deviation_starts), xs.shape[1], int(spec.seed) + 1))
+    v, u = jax.tree.map(np.asarray, checker(jnp.asarray(_pad(xs, size)), th, unit))
+    return jax.tree.map(lambda a: a[:count], v), u[:count]
 
 
 def _free_blocks(game, free: np.ndarray) -> tuple[int, ...]:
@@ -154,19 +154,17 @@ def _free_blocks(game, free: np.ndarray) -> tuple[int, ...]:
     return tuple(m for m in sub if m > 0)
 
 
-def _labels(game, checked: list, kind: str, batch: int) -> list[dict[str, Any]]:
+def _labels(game, v, count: int, kind: str, batch: int) -> list[dict[str, Any]]:
     """Stability fields per verified pair; stacks grouped by free-coordinate pattern and labelled together."""
     empty = {"equal_speeds": None, "equal_abscissa": None, "player_speeds": None, "coordinate_speeds": None,
              "hicksian": None, "learning_rate_limit": None, "best_response_radius": None, "stability": None}
-    out = [dict(empty) for _ in checked]
-    if kind == "none" or not checked:
+    out = [dict(empty) for _ in range(count)]
+    if kind == "none" or not count:
         return out
-    groups: dict[tuple, list[int]] = {}
-    for i, (v, _) in enumerate(checked):
-        groups.setdefault(tuple(bool(b) for b in v.interior), []).append(i)
-    for mask, idx in groups.items():
-        free = np.array(mask)
-        Js = _padded(np.stack([checked[i][0].jacobian[np.ix_(free, free)] for i in idx]), batch)
+    masks, group = np.unique(v.interior.astype(bool), axis=0, return_inverse=True)
+    for g, free in enumerate(masks):
+        idx = np.nonzero(group.reshape(-1) == g)[0]
+        Js = _padded(v.jacobian[idx][:, free][:, :, free], batch)
         if kind == "full":
             for i, rep in zip(idx, classify_batch(Js, _free_blocks(game, free))):
                 d = rep.to_dict()
@@ -176,8 +174,7 @@ def _labels(game, checked: list, kind: str, batch: int) -> list[dict[str, Any]]:
                               best_response_radius=rep.best_response["spectral_radius"], stability=d)
         else:
             for i, (verdict, abscissa) in zip(idx, equal_labels(Js)):
-                out[i].update(equal_speeds=verdict, equal_abscissa=abscissa,
-                              stability={"equal_speeds": {"verdict": verdict, "abscissa": abscissa}})
+                out[i].update(equal_speeds=verdict, equal_abscissa=abscissa)
     return out
 
 
@@ -204,14 +201,15 @@ def equal_labels(Js: np.ndarray) -> list[tuple[str, float | None]]:
     return [(VERDICTS[int(code)], float(a) * u) for (code, a), u in zip(res, units)]
 
 
-def _status(region_ok: bool, eqs: list, outcomes: dict, game, lo, hi) -> tuple[PointStatus, str | None]:
+def _status(region_ok: bool, eqs: list, outcomes: np.ndarray) -> tuple[PointStatus, str | None]:
     if not region_ok:
         return PointStatus.failed, "the search region is not a finite box at these parameters"
     if any(e["nash"] != Nash.not_nash.value for e in eqs):
         return PointStatus.solved, None
     if eqs:
         return PointStatus.no_equilibrium, "every first-order point found failed verification (not_nash)"
-    named = {Status.from_code(k).name: int(v) for k, v in outcomes.items()}
+    codes, counts = np.unique(outcomes, return_counts=True)
+    named = {Status.from_code(k).name: int(v) for k, v in zip(codes, counts)}
     if set(named) == {"nonfinite"}:
         return PointStatus.failed, "payoffs or their derivatives were non-finite from every start"
     return PointStatus.no_equilibrium, "no start converged: " + ", ".join(f"{k} {v}" for k, v in sorted(named.items()))
