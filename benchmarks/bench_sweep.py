@@ -20,7 +20,7 @@ equipoise does. A secondary reference adds that search with scipy (L-BFGS-B per 
 point and the same number of Sobol starts), timed on ``--dev-ref-points`` points.
 
     python benchmarks/bench_sweep.py [--points N] [--ref-points R] [--batch B] [--starts S]
-                                     [--deviation-starts D] [--no-warm] [--profile]
+                                     [--deviation-starts D] [--engine E] [--workers W] [--no-warm] [--profile]
 
 ``--profile`` adds, in this process, the time split of ``equipoise.sweeps._batch.solve_batch``
 per point (region, Newton, verification and within it the deviation search, labels, the rest,
@@ -84,8 +84,8 @@ def child(args):
 
     spec = make_spec(args.model, args.points, args.batch, args.starts, args.deviation_starts)
     t_imports = time.perf_counter() - T_START
-    res = sweep(spec, args.store, progress=False)
-    print(json.dumps({"seconds": res.seconds, "counts": res.counts, "verdicts": res.verdicts,
+    res = sweep(spec, args.store, engine=args.engine, workers=args.workers, progress=False)
+    print(json.dumps({"engine": args.engine, "seconds": res.seconds, "counts": res.counts, "verdicts": res.verdicts,
                       "stored": res.stored, "imports": t_imports, "child": time.perf_counter() - T_START}))
 
 
@@ -250,7 +250,9 @@ def run_sweep(args, model, store, cache):
     env = dict(os.environ, EQUIPOISE_CACHE=cache)
     cmd = [sys.executable, os.path.abspath(__file__), "--child", "--model", model, "--store", store,
            "--points", str(args.points), "--batch", str(args.batch), "--starts", str(args.starts),
-           "--deviation-starts", str(args.deviation_starts)]
+           "--deviation-starts", str(args.deviation_starts), "--engine", args.engine]
+    if args.workers:
+        cmd += ["--workers", str(args.workers)]
     t = time.perf_counter()
     done = subprocess.run(cmd, env=env, capture_output=True, text=True)
     wall = time.perf_counter() - t
@@ -270,6 +272,11 @@ def describe(label, wall, res, points, batch):
     first_extra = float(bs[0] - steady)  # compilation, mostly
     outside = res["seconds"] - float(bs.sum())  # model load, checks, store writes
     fixed = wall - steady * bs.size
+    if res.get("engine", "inprocess") != "inprocess":  # batches overlap in time: only the wall time means anything
+        print(f"equipoise sweep(), fresh process, {label}, engine {res['engine']}: {wall:.1f} s wall = "
+              f"{points / wall:.0f} points/s [interpreter start-up {wall - res['child']:.1f} s, imports "
+              f"{res['imports']:.1f} s, {bs.size} batches summing to {bs.sum():.1f} s of worker time]")
+        return float("nan")
     print(f"equipoise sweep(), fresh process, {label}: {wall:.1f} s wall = {points / wall:.0f} points/s "
           f"[interpreter start-up {wall - res['child']:.1f} s, imports {res['imports']:.1f} s, "
           f"first batch over a steady one (compilation) {first_extra:.1f} s, "
@@ -289,6 +296,9 @@ def main():
     ap.add_argument("--dev-ref-points", type=int, default=200,
                     help="subsample for the secondary reference that adds a scipy deviation search")
     ap.add_argument("--no-warm", action="store_true", help="skip the second run with the compilation cache filled")
+    ap.add_argument("--engine", default="inprocess", choices=("inprocess", "processes", "dask"),
+                    help="the sweep's engine (batch seconds then overlap: read the wall time)")
+    ap.add_argument("--workers", type=int, help="worker processes for --engine processes or dask")
     ap.add_argument("--profile", action="store_true")
     ap.add_argument("--profile-batches", type=int, default=8)
     ap.add_argument("--child", action="store_true", help=argparse.SUPPRESS)

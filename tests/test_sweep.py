@@ -129,6 +129,10 @@ def test_corrupt_store_is_a_clear_error(tmp_path, content, message):
     with pytest.raises(InputError, match=message):
         sweep(SweepSpec(FERRIES, axes=(Axis("a", (100.0,)),)), bad, progress=False)
     assert bad.read_bytes() == content  # nothing was overwritten
+    res = sweep(SweepSpec(FERRIES, axes=(Axis("a", (100.0,)),)), bad, new=True, progress=False)
+    assert res.complete  # asked for a new store: the unreadable file is kept aside, not deleted
+    kept = [f for f in os.listdir(tmp_path) if f.startswith("bad.sqlite.replaced-")]
+    assert len(kept) == 1 and (tmp_path / kept[0]).read_bytes() == content
 
 
 def test_truncated_store_is_a_clear_error(ferry_sweep, tmp_path):
@@ -293,3 +297,28 @@ def test_speed_verdicts_over_a_grid_match_the_3x3_criterion(tmp_path):
             assert e["coordinate_speeds"] == want and e["player_speeds"] == want, (k, d3)
             seen.add(want)
     assert seen == {"robust", "fragile"}
+
+
+def test_warm_starts_spread_equilibria_that_only_some_points_found(tmp_path, monkeypatch):
+    # From 4 Sobol starts per point some points of the triangle network find 3 of its equilibria
+    # and others 4; the warm pass restarts every point from its neighbours' roots and the batch's
+    # pool of roots. Every equilibrium found must be one of the support enumeration's
+    # (Bramoulle, Kranton & D'Amours 2014), and the warm pass must find more of them.
+    import equipoise.sweeps._batch as batch
+
+    spec = SweepSpec(TRIANGLE, axes=(Axis.linear("delta", 1.1, 3.0, 16),), starts=4, labels="none", batch=16)
+
+    def counts(store):
+        sweep(spec, store, progress=False)
+        with Store.read(store) as db:
+            for e in db.equilibria():
+                delta = db.points()[e["point"]]["values"][0]
+                assert np.min(np.max(np.abs(np.array(_support_enumeration(delta)) - e["actions"]), axis=1)) < 1e-8
+            return np.array([p["equilibria"] for p in db.points()])
+
+    with_warm = counts(tmp_path / "warm.sqlite")
+    monkeypatch.setattr(batch, "WARM_PER_NEIGHBOUR", 0)
+    monkeypatch.setattr(batch, "WARM_POOL", 0)
+    cold = counts(tmp_path / "cold.sqlite")
+    assert len(set(cold)) > 1                      # the Sobol starts alone disagree between points
+    assert np.all(with_warm >= cold) and with_warm.sum() > cold.sum()

@@ -232,7 +232,7 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         if isinstance(deflation_rounds, bool) or not isinstance(deflation_rounds, (int, np.integer)) \
                 or deflation_rounds < 1:
             raise InputError(f"deflation_rounds: expected a positive whole number, got {deflation_rounds!r}")
-        extra, extra_res, deflation = _deflate(game, theta, x0, points, residuals, int(deflation_rounds),
+        extra, extra_res, deflation = run_deflation(game, theta, x0, points, residuals, int(deflation_rounds),
                                                dedup_tol, dict(ftol=ftol, xtol=xtol, max_steps=max_steps))
         points, residuals = np.concatenate([points, extra]), np.concatenate([residuals, extra_res])
 
@@ -290,7 +290,7 @@ def _rosen(game, theta, x0: np.ndarray) -> dict[str, Any]:
 DEFLATION_POWER, DEFLATION_SHIFT = 1.0, 2.0
 
 
-def _deflate(game, theta, x0: np.ndarray, points: np.ndarray, residuals: np.ndarray, rounds: int,
+def run_deflation(game, theta, x0: np.ndarray, points: np.ndarray, residuals: np.ndarray, rounds: int,
              dedup_tol: float, newton: dict) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
     """Deflation rounds from the starts ``x0``; the new converged points, their residuals, the effort."""
     with user_code(game, "search_box"):

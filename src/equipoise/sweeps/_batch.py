@@ -10,9 +10,10 @@ Steps
 1. Newton from ``starts`` Sobol points of each point's search region, for all
    points at once (``vmap`` over points and starts; one compilation per model
    and batch shape).
-2. Warm starts: where neighbouring points of the batch found different numbers
-   of equilibria, Newton runs again at each point from its neighbours' roots.
-3. With ``all_equilibria``, deflation rounds at each point (as :func:`equipoise.solve`).
+2. With ``all_equilibria``, deflation rounds at each point (as :func:`equipoise.solve`).
+3. Warm starts: where points of the batch found different numbers of
+   equilibria, Newton runs again at each point from its neighbours' roots and
+   from a pool of one representative per branch found anywhere in the batch.
 4. De-duplication per point, then verification of every (point, root) pair
    in one ``vmap``ed call, then stability labels on the free coordinates.
 """
@@ -28,7 +29,7 @@ import numpy as np
 from .._checks import user_code
 from .._newton import newton_solve
 from .._sampling import unit_sample
-from .._solve import _deflate, distinct
+from .._solve import distinct, run_deflation
 from .._status import Nash, PointStatus, Status
 from .._verify import verify
 from ..stability import classify_batch
@@ -40,7 +41,11 @@ NEWTON = {"ftol": 1e-10, "xtol": 1e-10, "max_steps": 100}
 #: Scaled distance under which two roots of one point are one (as in :func:`equipoise.solve`).
 DEDUP_TOL = 1e-6
 #: Warm starts per point: up to this many roots from each of the two neighbours.
-WARM_PER_NEIGHBOUR = 2
+WARM_PER_NEIGHBOUR = 8
+#: ... and up to this many representatives of the roots found anywhere in the batch.
+WARM_POOL = 16
+#: Scaled distance under which roots of different points count as one branch for the pool.
+POOL_TOL = 1e-2
 #: Deflation rounds per point with ``all_equilibria``.
 DEFLATION_ROUNDS = 8
 
@@ -80,21 +85,22 @@ def solve_batch(game, spec, base: dict[str, np.ndarray], indices: np.ndarray, va
     found, resid = _converged(out, count)
     statuses = out.status[:count]
 
+    if spec.all_equilibria:
+        for p in np.nonzero(region_ok[:count])[0]:
+            th_p = {k: jnp.asarray(v[p]) for k, v in thetas.items()}
+            extra, extra_res, _ = run_deflation(game, th_p, x0[p], found[p], resid[p], DEFLATION_ROUNDS,
+                                                DEDUP_TOL, dict(NEWTON))
+            found[p], resid[p] = np.concatenate([found[p], extra]), np.concatenate([resid[p], extra_res])
     roots = [_distinct(found[p], resid[p]) for p in range(count)]
+    # After deflation, so that what deflation found at some points is tried at all of them.
     if count > 1 and len({len(r) for r in roots}) > 1:
-        warm = _warm_starts(roots, x0[:, 0, :], B)
+        warm = _warm_starts(roots, x0[:, 0, :])
         with user_code(game, "payoffs"):
             out2 = jax.tree.map(np.asarray, newton(jnp.asarray(warm), th))
         more, more_res = _converged(out2, count)
         found = [np.concatenate([a, b]) for a, b in zip(found, more)]
         resid = [np.concatenate([a, b]) for a, b in zip(resid, more_res)]
         roots = [_distinct(found[p], resid[p]) for p in range(count)]
-    if spec.all_equilibria:
-        for p in np.nonzero(region_ok[:count])[0]:
-            th_p = {k: jnp.asarray(v[p]) for k, v in thetas.items()}
-            extra, extra_res, _ = _deflate(game, th_p, x0[p], found[p], resid[p], DEFLATION_ROUNDS,
-                                           DEDUP_TOL, dict(NEWTON))
-            roots[p] = _distinct(np.concatenate([found[p], extra]), np.concatenate([resid[p], extra_res]))
 
     owners = np.array([p for p in range(count) if region_ok[p] for _ in roots[p]], dtype=int)
     xs = np.array([x for p in range(count) if region_ok[p] for x, _ in roots[p]]).reshape(-1, n)
@@ -126,15 +132,26 @@ def _distinct(points: np.ndarray, residuals: np.ndarray) -> list[tuple[np.ndarra
     return distinct(points, residuals, DEDUP_TOL)
 
 
-def _warm_starts(roots, filler: np.ndarray, starts: int) -> np.ndarray:
-    """Each point's neighbours' roots as starts, shape ``(B, S, n)`` (padded with the first Sobol start)."""
+def _warm_starts(roots, filler: np.ndarray) -> np.ndarray:
+    """Warm starts for each point, shape ``(B, S, n)``: its neighbours' roots, then the batch's pool.
+
+    The pool holds one representative of each group of roots found anywhere in
+    the batch (grouped at the looser ``POOL_TOL``, most-hit first), so a branch
+    that only some points found is tried everywhere in one pass. ``S`` is a
+    power of two (few compiled shapes); unused slots repeat the point's first
+    Sobol start.
+    """
     B, n = filler.shape
-    S = max(starts, 2 * WARM_PER_NEIGHBOUR)
+    every = [(x, c) for r in roots for x, c in r]
+    pool = distinct(np.array([x for x, _ in every]), -np.array([c for _, c in every], dtype=float), POOL_TOL)
+    pool = [x for x, _ in pool[:WARM_POOL]]
+    mine = [[x for q in (p - 1, p + 1) if 0 <= q < len(roots) for x, _ in roots[q][:WARM_PER_NEIGHBOUR]] + pool
+            for p in range(len(roots))]
+    S = 1 << max(1, (max(len(m) for m in mine) - 1).bit_length())
     out = np.repeat(filler[:, None, :], S, axis=1)
-    for p in range(len(roots)):
-        mine = [x for q in (p - 1, p + 1) if 0 <= q < len(roots) for x, _ in roots[q][:WARM_PER_NEIGHBOUR]]
-        if mine:
-            out[p, : len(mine)] = np.asarray(mine)
+    for p, m in enumerate(mine):
+        if m:
+            out[p, : len(m)] = np.asarray(m)
     return out
 
 

@@ -60,26 +60,31 @@ class Store:
                          players: dict, coordinates: list[str], new: bool = False) -> "Store":
         """Open ``path`` to continue the sweep with ``fingerprint``, or create it.
 
-        An existing store with another fingerprint raises :class:`InputError`
-        unless ``new``; then it is renamed aside (``<path>.replaced-<time>``)
-        and a new store is created.
+        An existing store with another fingerprint, or a file that is not a
+        readable store, raises :class:`InputError` unless ``new``; then it is
+        renamed aside (``<path>.replaced-<time>``), never deleted, and a new
+        store is created.
         """
         path = os.fspath(path)
         if os.path.isdir(path):
             raise InputError(f"{path}: is a directory; expected the path of a results store file")
         if os.path.exists(path):
-            conn = _connect_existing(path)
-            store = cls(path, conn)
-            if store.meta.get("fingerprint") == fingerprint:
-                return store
-            conn.close()
-            if not new:
-                raise InputError(
-                    f"{path}: this store holds a sweep of another model file or spec "
-                    f"(model {store.meta.get('model')!r}); pass --new to keep it aside and start a new store, "
-                    "or choose another --store")
-            aside = f"{path}.replaced-{time.strftime('%Y%m%d-%H%M%S')}"
-            os.replace(path, aside)
+            try:
+                store = cls(path, _connect_existing(path))
+            except InputError:
+                if not new:
+                    raise
+                store = None  # unreadable, and a new store was asked for: keep the file aside below
+            if store is not None:
+                if store.meta.get("fingerprint") == fingerprint:
+                    return store
+                store.close()
+                if not new:
+                    raise InputError(
+                        f"{path}: this store holds a sweep of another model file or spec "
+                        f"(model {store.meta.get('model')!r}); pass --new to keep it aside and start a new "
+                        "store, or choose another --store")
+            os.replace(path, f"{path}.replaced-{time.strftime('%Y%m%d-%H%M%S')}")
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise InputError(f"{path}: folder {folder} does not exist; expected a writable place for the store")
