@@ -21,6 +21,9 @@ from ._store import Store
 #: What a picture can be coloured by.
 COLOR_CHOICES = ("nash", "equal_speeds", "player_speeds", "coordinate_speeds", "count")
 
+#: Printed small in a corner of every picture (see the README's caution).
+PICTURE_CAUTION = "numerical results of a model; for consequential use follow applicable guidelines and qualified review"
+
 #: Category key -> (legend label, colour). Order is legend order.
 CATEGORIES: dict[str, tuple[str, str]] = {
     "robust": ("robust to any speeds", "#2a9d8f"),
@@ -191,6 +194,7 @@ def plot_store(store, out, *, x: str, y: str | None = None, color: str = "coordi
         per_line = max(int(width / (0.55 * 11.5 * scale * _DPI / 72)), 20)
         lines = [f"{os.path.basename(str(meta.get('model', '?')))}: {what}", f"{os.path.basename(path)}: {note}"]
         fig.suptitle("\n".join(textwrap.fill(t, per_line) for t in lines))
+        fig.text(0.995, 0.004, PICTURE_CAUTION, ha="right", va="bottom", fontsize=6.5 * scale, color="#777777")
         try:
             fig.savefig(out, dpi=_DPI, format="png")
         except OSError as exc:

@@ -240,8 +240,11 @@ def _connect_existing(path: str) -> sqlite3.Connection:
         row = conn.execute("SELECT value FROM meta WHERE key = 'format'").fetchone()
     except sqlite3.DatabaseError as exc:
         raise InputError(f"{path}: not a readable results store ({exc}); {what}") from None
-    if row is None or json.loads(row[0]) != FORMAT:
-        raise InputError(f"{path}: store format {row and json.loads(row[0])!r} is not {FORMAT!r}; {what}")
+    if row is None:
+        raise InputError(f"{path}: not an equipoise results store (no format entry); {what}")
+    if json.loads(row[0]) != FORMAT:
+        raise InputError(f"{path}: store format {json.loads(row[0])!r} is not this version's {FORMAT!r}; "
+                         "run the sweep again with --new (the old file is kept aside)")
     return conn
 
 
