@@ -98,7 +98,7 @@ def test_store_of_another_spec_is_refused_then_kept_aside(ferry_sweep, tmp_path)
     copy = tmp_path / "copy.sqlite"
     copy.write_bytes(store.read_bytes())
     other = SweepSpec(FERRIES, axes=(Axis.linear("c[2]", 20.0, 90.0, 16),), batch=8)
-    with pytest.raises(InputError, match="holds a sweep of another model file or spec.*--new"):
+    with pytest.raises(InputError, match="made from another spec or from different contents of the model file.*--new"):
         sweep(other, copy, progress=False)
     res = sweep(SweepSpec(FERRIES, axes=(Axis("a", (100.0, 110.0)),), batch=8), copy, new=True, progress=False)
     assert res.complete and res.points == 2
@@ -113,7 +113,7 @@ def test_a_changed_model_file_is_another_sweep(ferry_sweep, tmp_path):
     model.write_text(Path(FERRIES).read_text() + "\n# edited\n")
     copy = tmp_path / "copy.sqlite"
     copy.write_bytes(store.read_bytes())
-    with pytest.raises(InputError, match="another model file or spec"):
+    with pytest.raises(InputError, match="different contents of the model file"):
         sweep(SweepSpec(str(model), axes=spec.axes, batch=8), copy, progress=False)
 
 
@@ -322,3 +322,69 @@ def test_warm_starts_spread_equilibria_that_only_some_points_found(tmp_path, mon
     cold = counts(tmp_path / "cold.sqlite")
     assert len(set(cold)) > 1                      # the Sobol starts alone disagree between points
     assert np.all(with_warm >= cold) and with_warm.sum() > cold.sum()
+
+
+def test_export_onto_the_store_itself_is_refused_and_the_store_survives(ferry_sweep, tmp_path):
+    _, store, _ = ferry_sweep
+    copy = tmp_path / "own.sqlite"
+    copy.write_bytes(store.read_bytes())
+    with Store.read(copy) as db, pytest.raises(InputError, match="is the results store itself"):
+        db.export_csv(copy)
+    with Store.read(copy) as db:
+        assert len(db.points()) == 15
+
+
+def test_one_parameter_entry_written_two_ways_is_one_axis_twice():
+    spec = SweepSpec(FERRIES, axes=(Axis("c[2]", (1.0, 2.0)), Axis("c[02]", (3.0,))))
+    with pytest.raises(InputError, match=r"axis c\[02\]: the same parameter entry as axis c\[2\]"):
+        spec.validate()
+
+
+def test_repeated_new_stores_keep_every_old_one(tmp_path):
+    store = tmp_path / "s.sqlite"
+    for a in (100.0, 110.0, 120.0):
+        sweep(SweepSpec(FERRIES, axes=(Axis("a", (a,)),), labels="none"), store, new=True, progress=False)
+    kept = sorted(f for f in os.listdir(tmp_path) if f.startswith("s.sqlite.replaced-"))
+    assert len(kept) == 2
+    firsts = sorted(Store.read(tmp_path / f).points()[0]["values"][0] for f in kept)
+    assert firsts == [100.0, 110.0]
+    assert Store.read(store).points()[0]["values"] == [120.0]
+
+
+def test_store_path_that_is_the_model_file_is_refused(tmp_path):
+    model = tmp_path / "m.py"
+    model.write_text(Path(FERRIES).read_text())
+    with pytest.raises(InputError, match="is the model file"):
+        sweep(SweepSpec(str(model), axes=(Axis("a", (100.0,)),)), model, new=True, progress=False)
+    assert model.read_text() == Path(FERRIES).read_text()
+
+
+def test_axis_named_like_a_store_column_is_refused(tmp_path):
+    model = tmp_path / "m.py"
+    model.write_text(Path(FERRIES).read_text().replace("game = cournot(", "game = cournot(") +
+                     "\ngame.defaults['status'] = game.defaults['a']\n")
+    with pytest.raises(InputError, match="axis status: the name is a column of the results store"):
+        sweep(SweepSpec(str(model), axes=(Axis("status", (1.0,)),)), tmp_path / "x.sqlite", progress=False)
+    assert not (tmp_path / "x.sqlite").exists()
+
+
+@pytest.mark.parametrize("edit, message", [
+    (lambda t: t.replace("num = 4", "num = 1000000000000"), "expected a positive whole number of values"),
+    (lambda t: t.replace("a = 120.0", 'a = "120"'), "params: a: expected a number"),
+    (lambda t: t.replace("a = 120.0", "a = true"), "params: a: expected a number"),
+    (lambda t: t.replace("batch = 8", "batch = 100000000000"), "batch: expected a positive whole number"),
+    (lambda t: t.replace('name = "c[2]"', 'name = "c[-1]"'), "expected NAME or NAME\\[INDEX\\]"),
+])
+def test_more_bad_specs_are_one_clear_line(tmp_path, edit, message):
+    path = tmp_path / "sweep.toml"
+    path.write_text(edit(SPEC_TOML.format(model=os.path.abspath(FERRIES))))
+    with pytest.raises(InputError, match=message) as info:
+        load_spec(path)
+    assert str(info.value).startswith(str(path))
+
+
+def test_malformed_scheduler_address_is_one_line(tmp_path):
+    pytest.importorskip("distributed")
+    with pytest.raises(InputError, match="--scheduler bogus://x: cannot reach the Dask scheduler"):
+        sweep(SweepSpec(FERRIES, axes=(Axis("a", (100.0,)),)), tmp_path / "x.sqlite", engine="dask",
+              scheduler="bogus://x", progress=False)

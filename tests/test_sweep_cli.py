@@ -66,7 +66,7 @@ def test_flags_sweep_with_sample(tmp_path, capsys):
     (["sweep", FERRIES, "--axis", "c[2]=1:2:3"], "--store: expected the path of the results store"),
     (["sweep", FERRIES, "--axis", "c[2]=1:2", "--store", "x.sqlite"], "--axis 'c[2]=1:2': expected NAME=START:STOP:NUM"),
     (["sweep", FERRIES, "--axis", "c[2]=a:2:3", "--store", "x.sqlite"], "expected numbers in"),
-    (["sweep", FERRIES, "--axis", "c[2]=1:2:3", "--axis", "c[2]=1:2:3", "--store", "x.sqlite"], "given twice"),
+    (["sweep", FERRIES, "--axis", "c[2]=1:2:3", "--axis", "c[2]=1:2:3", "--store", "x.sqlite"], "the same parameter entry as axis"),
     (["sweep", FERRIES, "--axis", "q=1:2:3", "--store", "x.sqlite"], "axis q: 'q' is not a parameter"),
     (["sweep", FERRIES, "--axis", "c[2]=1:2:3", "--store", "x.sqlite", "--batch", "0"], "--batch: expected a positive"),
     (["sweep", FERRIES, "--axis", "c[2]=1:2:3", "--store", "x.sqlite", "--scheduler", "tcp://127.0.0.1:1"],

@@ -70,7 +70,7 @@ def _compiled(game, spec):
 
 def solve_batch(game, spec, base: dict[str, np.ndarray], indices: np.ndarray, values: np.ndarray) -> list[dict]:
     """Records of the points ``indices`` (axis ``values``), see :mod:`equipoise.sweeps._store`."""
-    count, B, n = len(indices), int(spec.batch), game.n
+    count, B, n = len(indices), min(int(spec.batch), spec.size), game.n  # no padding beyond the sweep
     newton, region, checker = _compiled(game, spec)
     thetas = spec.thetas(base, _pad(values, B))
     th = {k: jnp.asarray(v) for k, v in thetas.items()}
@@ -158,7 +158,7 @@ def _warm_starts(roots, filler: np.ndarray) -> np.ndarray:
 def _verify_pairs(checker, thetas, owners: np.ndarray, xs: np.ndarray, spec):
     """Verification and payoffs of every (point, root) pair, batched: arrays with a leading pair axis."""
     count = len(owners)
-    size = max(int(spec.batch), 1 << max(0, (count - 1).bit_length()))  # few shapes
+    size = max(min(int(spec.batch), spec.size), 1 << max(0, (count - 1).bit_length()))  # few shapes
     idx = _pad(owners, size)
     th = {k: jnp.asarray(v[idx]) for k, v in thetas.items()}
     unit = jnp.asarray(unit_sample(int(spec.deviation_starts), xs.shape[1], int(spec.seed) + 1))

@@ -43,8 +43,10 @@ def _prepare(spec, model_text: str, fingerprint: str):
             folder = os.path.join(tempfile.gettempdir(), f"equipoise-model-{fingerprint[:16]}")
             os.makedirs(folder, exist_ok=True)
             path = os.path.join(folder, os.path.basename(spec.model))
-            with open(path, "w", encoding="utf-8") as fh:
+            scratch = f"{path}.{os.getpid()}"
+            with open(scratch, "w", encoding="utf-8") as fh:  # whole file or none: workers share the folder
                 fh.write(model_text)
+            os.replace(scratch, path)
         game = load_game(path)
         _WORKER_STATE[fingerprint] = (game, spec.check_game(game), spec, spec.points())
     return _WORKER_STATE[fingerprint]
@@ -96,7 +98,7 @@ def dask(spec, model_text: str, fingerprint: str, todo: list[int], workers: int 
             cluster = LocalCluster(n_workers=workers or os.cpu_count() or 1, threads_per_worker=1,
                                    processes=True, dashboard_address=None, host="127.0.0.1")
             client = Client(cluster)
-    except OSError as exc:
+    except (OSError, ValueError) as exc:  # unreachable, or an address Dask cannot parse
         raise InputError(f"--scheduler {scheduler}: cannot reach the Dask scheduler ({exc})") from None
     try:
         futures = [client.submit(run_batch, spec, model_text, fingerprint, b, pure=False)

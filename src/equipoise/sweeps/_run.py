@@ -71,7 +71,7 @@ def _model_text(path: str) -> str:
 
 def _check_first_point(game, spec: SweepSpec, base: dict) -> None:
     """Evaluate the payoffs once at the first point: model-code errors surface as one line here."""
-    theta = {k: jnp.asarray(v) for k, v in spec.thetas(base, spec.points()[:1]).items()}
+    theta = {k: jnp.asarray(v) for k, v in spec.thetas(base, spec.first_point()).items()}
     theta = {k: v[0] for k, v in theta.items()}
     with user_code(game, "search_box"):
         lo, hi = (np.asarray(v) for v in game.region(theta))
@@ -132,6 +132,9 @@ def sweep(spec: SweepSpec, store: str | os.PathLike, *, engine: str = "inprocess
     text = _model_text(spec.model)
     base = spec.check_game(game)
     _check_first_point(game, spec, base)
+    for other, what in ((spec.model, "model file"), (spec.source, "sweep file")):
+        if other and os.path.exists(store) and os.path.exists(other) and os.path.samefile(store, other):
+            raise InputError(f"{store}: is the {what}; expected another path for the results store")
     fingerprint = spec.fingerprint(text)
     players = dict(zip(game.players, game.sizes))
     db = Store.create_or_resume(store, fingerprint=fingerprint, spec=spec.to_dict(), model=os.path.abspath(spec.model),
@@ -144,8 +147,8 @@ def sweep(spec: SweepSpec, store: str | os.PathLike, *, engine: str = "inprocess
         computed, interrupted = 0, False
         bar = _progress(remaining, progress)
         try:
-            for b, records, seconds in RUNNERS[engine](spec, text, fingerprint, todo, workers=workers,
-                                                       scheduler=scheduler):
+            runs = RUNNERS[engine](spec, text, fingerprint, todo, workers=workers, scheduler=scheduler) if todo else ()
+            for b, records, seconds in runs:
                 if db.write_batch(b, records, seconds, engine):
                     computed += len(records)
                 if bar is not None:

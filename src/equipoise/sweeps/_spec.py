@@ -29,6 +29,12 @@ from .._sampling import unit_sample
 
 #: Stability labels a sweep can attach: every label, equal speeds only, or none.
 LABELS = ("full", "equal", "none")
+#: Largest sweep, batch and number of starts accepted (far beyond what one machine solves in a day).
+MAX_POINTS, MAX_BATCH, MAX_STARTS = 10**9, 65536, 4096
+#: Column names of the store's points table and results view: an axis may not take one (case ignored).
+RESERVED = ("id", "batch", "status", "reason", "equilibria", "point", "rank", "actions", "payoffs", "residual",
+            "nash", "starts", "equal_speeds", "equal_abscissa", "player_speeds", "coordinate_speeds", "hicksian",
+            "learning_rate_limit", "best_response_radius", "stability")
 
 _NAME = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[\s*(\d+)\s*\])?\s*$")
 
@@ -63,11 +69,13 @@ class Axis:
     @classmethod
     def linear(cls, name: str, start: float, stop: float, num: int) -> "Axis":
         """``num`` evenly spaced values from ``start`` to ``stop`` inclusive."""
+        _finite_ends(name, start, stop)
         return cls(name, tuple(float(v) for v in np.linspace(start, stop, _count(name, num))))
 
     @classmethod
     def log(cls, name: str, start: float, stop: float, num: int) -> "Axis":
         """``num`` values evenly spaced in logarithm from ``start`` to ``stop`` (both positive)."""
+        _finite_ends(name, start, stop)
         if not (start > 0 and stop > 0):
             raise InputError(f"axis {name}: a log range needs positive start and stop, got {start:g}:{stop:g}")
         return cls(name, tuple(float(v) for v in np.geomspace(start, stop, _count(name, num))), scale="log")
@@ -82,9 +90,15 @@ class Axis:
 
 
 def _count(name: str, num) -> int:
-    if isinstance(num, bool) or not isinstance(num, (int, np.integer)) or num < 1:
-        raise InputError(f"axis {name}: expected a positive whole number of values, got {num!r}")
+    if isinstance(num, bool) or not isinstance(num, (int, np.integer)) or not 1 <= num <= MAX_POINTS:
+        raise InputError(f"axis {name}: expected a positive whole number of values (at most {MAX_POINTS}), "
+                         f"got {num!r}")
     return int(num)
+
+
+def _finite_ends(name: str, start, stop) -> None:
+    if not (math.isfinite(start) and math.isfinite(stop)):
+        raise InputError(f"axis {name}: expected finite start and stop, got {start!r}:{stop!r}")
 
 
 @dataclass(frozen=True)
@@ -143,11 +157,24 @@ class SweepSpec:
         """Check the settings (not yet the model); raises :class:`InputError`."""
         if not self.axes:
             raise InputError(self.where("axes: expected at least one axis"))
-        names = [a.name.replace(" ", "") for a in self.axes]
-        for i, axis in enumerate(self.axes):
-            axis.parameter  # noqa: B018 -- raises on a malformed name
-            if names.count(names[i]) > 1:
-                raise InputError(self.where(f"axis {axis.name}: given twice; expected each axis once"))
+        seen: dict[tuple, str] = {}
+        columns: set[str] = set()
+        for axis in self.axes:
+            try:
+                target = axis.parameter
+            except InputError as exc:
+                raise InputError(self.where(str(exc))) from None
+            if target in seen:
+                raise InputError(self.where(f"axis {axis.name}: the same parameter entry as axis {seen[target]}; "
+                                            "expected each axis once"))
+            seen[target] = axis.name
+            if axis.name.lower() in RESERVED or axis.name.lower() in columns:
+                raise InputError(self.where(f"axis {axis.name}: the name clashes with a column of the results "
+                                            "store; write it differently (e.g. with spaces removed or an index)"
+                                            if axis.name.lower() in columns else
+                                            f"axis {axis.name}: the name is a column of the results store "
+                                            f"({', '.join(RESERVED)}); rename the parameter in the model"))
+            columns.add(axis.name.lower())
             if self.sample is None:
                 if not axis.values:
                     raise InputError(self.where(f"axis {axis.name}: expected values (a list, or start, stop "
@@ -163,12 +190,15 @@ class SweepSpec:
                     raise InputError(self.where(f"axis {axis.name}: a log range needs positive start and stop"))
             if axis.scale not in ("linear", "log"):
                 raise InputError(self.where(f"axis {axis.name}: scale {axis.scale!r}; expected 'linear' or 'log'"))
-        for key in ("starts", "deviation_starts", "batch"):
-            _whole(self, key, getattr(self, key), 1)
+        _whole(self, "starts", self.starts, 1, MAX_STARTS)
+        _whole(self, "deviation_starts", self.deviation_starts, 1, MAX_STARTS)
+        _whole(self, "batch", self.batch, 1, MAX_BATCH)
         _whole(self, "seed", self.seed, 0)
         _whole(self, "sample_seed", self.sample_seed, 0)
         if self.sample is not None:
-            _whole(self, "sample", self.sample, 1)
+            _whole(self, "sample", self.sample, 1, MAX_POINTS)
+        elif self.size > MAX_POINTS:
+            raise InputError(self.where(f"axes: {self.size} grid points; expected at most {MAX_POINTS}"))
         if self.labels not in LABELS:
             raise InputError(self.where(f"labels: {self.labels!r}; expected one of {', '.join(LABELS)}"))
         if not isinstance(self.all_equilibria, bool):
@@ -188,8 +218,9 @@ class SweepSpec:
                                             f"(it has {', '.join(base) or 'none'})"))
             shape = base[name].shape
             if index is None and shape != ():
-                raise InputError(self.where(f"axis {axis.name}: parameter {name!r} has shape {shape}; "
-                                            f"give an entry, e.g. {name}[0]"))
+                hint = f"give an entry, e.g. {name}[0]" if len(shape) == 1 else \
+                    "only numbers and entries of vector parameters can be swept"
+                raise InputError(self.where(f"axis {axis.name}: parameter {name!r} has shape {shape}; {hint}"))
             if index is not None and (len(shape) != 1 or not 0 <= index < shape[0]):
                 raise InputError(self.where(f"axis {axis.name}: expected an index into a vector of "
                                             f"{shape[0] if len(shape) == 1 else 'one dimension'} entries"))
@@ -201,7 +232,7 @@ class SweepSpec:
         """Number of points."""
         if self.sample is not None:
             return int(self.sample)
-        return int(np.prod([len(a.values) for a in self.axes]))
+        return math.prod(len(a.values) for a in self.axes)
 
     @property
     def batches(self) -> int:
@@ -220,6 +251,12 @@ class SweepSpec:
             else:
                 cols.append(a.low + (a.high - a.low) * u[:, k])
         return np.stack(cols, axis=1)
+
+    def first_point(self) -> np.ndarray:
+        """Axis values of point 0, shape ``(1, len(axes))``, without building the whole grid."""
+        if self.sample is not None:
+            return self.points()[:1]
+        return np.array([[a.values[0] for a in self.axes]], dtype=float)
 
     def batch_indices(self, b: int) -> np.ndarray:
         """Point indices of batch ``b``."""
@@ -241,7 +278,7 @@ class SweepSpec:
         """JSON-ready description (everything but ``source``)."""
         out = {f.name: getattr(self, f.name) for f in dataclasses.fields(self) if f.name != "source"}
         out["axes"] = [dataclasses.asdict(a) for a in self.axes]
-        out["params"] = {k: np.asarray(v).tolist() for k, v in dict(self.params).items()}
+        out["params"] = {k: np.asarray(v, dtype=float).tolist() for k, v in dict(self.params).items()}
         return out
 
     def fingerprint(self, model_text: str) -> str:
@@ -252,10 +289,12 @@ class SweepSpec:
         return hashlib.sha256(json.dumps(body, sort_keys=True).encode()).hexdigest()
 
 
-def _whole(spec: SweepSpec, key: str, value, least: int) -> None:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least:
+def _whole(spec: SweepSpec, key: str, value, least: int, most: int | None = None) -> None:
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < least \
+            or (most is not None and value > most):
         kind = "positive" if least > 0 else "non-negative"
-        raise InputError(spec.where(f"{key}: expected a {kind} whole number, got {value!r}"))
+        limit = f" (at most {most})" if most is not None else ""
+        raise InputError(spec.where(f"{key}: expected a {kind} whole number{limit}, got {value!r}"))
 
 
 # ---------------------------------------------------------------- TOML
@@ -324,6 +363,9 @@ def load_spec(path: str | os.PathLike) -> tuple[SweepSpec, str | None]:
     params = doc.get("params", {})
     if not isinstance(params, dict):
         raise bad("params: expected a table of parameter values")
+    for key, value in params.items():
+        if not _numeric(value):
+            raise bad(f"params: {key}: expected a number or a (nested) list of numbers, got {value!r}")
     sample = doc.get("sample")
     if sample is not None:
         if not isinstance(sample, dict):
@@ -368,7 +410,11 @@ def _axis_from_table(t: dict, k: int, sampled: bool, bad) -> Axis:
             raise bad(f"axis {name}: values: expected a non-empty list of numbers")
         if sampled:
             raise bad(f"axis {name}: a [sample] sweep takes start and stop, not values")
+        if "scale" in t:
+            raise bad(f"axis {name}: scale applies to start/stop ranges, not to a list of values")
         return Axis(name, tuple(float(v) for v in vals))
+    if sampled and "num" in t:
+        raise bad(f"axis {name}: num: a [sample] sweep draws [sample] points; give start and stop only")
     for key in ("start", "stop") + (() if sampled else ("num",)):
         if key not in t:
             raise bad(f"axis {name}: {key}: missing; expected values, or start, stop"
@@ -386,6 +432,10 @@ def _axis_from_table(t: dict, k: int, sampled: bool, bad) -> Axis:
 
 def _number(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _numeric(v) -> bool:
+    return all(_numeric(x) for x in v) if isinstance(v, list) and v else _number(v)
 
 
 # ---------------------------------------------------------------- flags
@@ -425,6 +475,7 @@ def parse_axis(text: str, sampled: bool = False) -> Axis:
     except ValueError:
         raise InputError(f"--axis {text!r}: expected numbers in {form}") from None
     if sampled:
+        _finite_ends(name, lo, hi)
         return Axis(name, low=lo, high=hi, scale=scale)
     return (Axis.log if scale == "log" else Axis.linear)(name, lo, hi, num)
 

@@ -44,7 +44,15 @@ class Store:
     def __init__(self, path: str, conn: sqlite3.Connection):
         self.path = path
         self.conn = conn
-        self.meta = {k: json.loads(v) for k, v in conn.execute("SELECT key, value FROM meta")}
+        try:
+            self.meta = {k: json.loads(v) for k, v in conn.execute("SELECT key, value FROM meta")}
+            missing = [k for k in ("fingerprint", "axes", "players", "coordinates") if k not in self.meta]
+        except (sqlite3.Error, json.JSONDecodeError, TypeError) as exc:
+            conn.close()
+            raise InputError(f"{path}: results store is damaged (its meta table cannot be read: {exc})") from None
+        if missing:
+            conn.close()
+            raise InputError(f"{path}: results store is damaged (meta lacks {', '.join(missing)})")
 
     # ------------------------------------------------------------ opening
     @classmethod
@@ -77,23 +85,45 @@ class Store:
                 store = None  # unreadable, and a new store was asked for: keep the file aside below
             if store is not None:
                 if store.meta.get("fingerprint") == fingerprint:
+                    store._check_writable()
                     return store
                 store.close()
                 if not new:
                     raise InputError(
-                        f"{path}: this store holds a sweep of another model file or spec "
-                        f"(model {store.meta.get('model')!r}); pass --new to keep it aside and start a new "
-                        "store, or choose another --store")
-            os.replace(path, f"{path}.replaced-{time.strftime('%Y%m%d-%H%M%S')}")
+                        f"{path}: this store was made from another spec or from different contents of the model "
+                        f"file ({store.meta.get('model')}); pass --new to keep it aside and start a new store, "
+                        "or choose another --store")
+            aside = _free_name(path)
+            try:
+                os.replace(path, aside)
+            except OSError as exc:
+                raise InputError(f"{path}: cannot keep the old store aside as {aside} ({exc.strerror})") from None
         folder = os.path.dirname(os.path.abspath(path))
         if not os.path.isdir(folder):
             raise InputError(f"{path}: folder {folder} does not exist; expected a writable place for the store")
+        # Built under a temporary name and renamed into place: a failed or interrupted creation leaves no store.
+        scratch = f"{path}.creating-{os.getpid()}"
         try:
-            conn = sqlite3.connect(path)
-            _create(conn, fingerprint, spec, model, players, coordinates)
-        except sqlite3.Error as exc:
+            conn = sqlite3.connect(scratch)
+            try:
+                _create(conn, fingerprint, spec, model, players, coordinates)
+            finally:
+                conn.close()
+            os.replace(scratch, path)
+        except (sqlite3.Error, OSError) as exc:
+            if os.path.exists(scratch):
+                os.remove(scratch)
             raise InputError(f"{path}: cannot create the results store ({exc})") from None
-        return cls(path, conn)
+        return cls(path, sqlite3.connect(path))
+
+    def _check_writable(self) -> None:
+        try:
+            self.conn.execute("BEGIN IMMEDIATE")
+            self.conn.execute("ROLLBACK")
+        except sqlite3.Error as exc:
+            self.close()
+            raise InputError(f"{self.path}: cannot write to the results store ({exc}); "
+                             "expected a writable file in a writable folder") from None
 
     def close(self) -> None:
         self.conn.close()
@@ -125,7 +155,11 @@ class Store:
                     f"INSERT INTO equilibria ({', '.join(_EQ_COLUMNS)}) VALUES ({', '.join('?' * len(_EQ_COLUMNS))})",
                     [_eq_row(r["index"], k, e) for r in records for k, e in enumerate(r["equilibria"])])
         except sqlite3.IntegrityError:
-            return False
+            if self.conn.execute("SELECT 1 FROM batches WHERE id = ?", (batch,)).fetchone():
+                return False  # stored already (by another run)
+            raise
+        except sqlite3.OperationalError as exc:
+            raise InputError(f"{self.path}: cannot write to the results store ({exc})") from None
         return True
 
     # ------------------------------------------------------------ reading
@@ -183,6 +217,8 @@ class Store:
         ``best_response_radius``, ``reason``. Returns the number of rows.
         """
         target = os.fspath(target)
+        if os.path.exists(target) and os.path.samefile(target, self.path):
+            raise InputError(f"--csv {target}: is the results store itself; expected another file name")
         axes, coords, players = self.meta["axes"], self.meta["coordinates"], list(self.meta["players"])
         header = (["point"] + axes + ["status", "equilibrium"] + coords + [f"payoff[{p}]" for p in players]
                   + ["residual", "nash", "equal_speeds", "equal_abscissa", "player_speeds", "coordinate_speeds",
@@ -191,8 +227,9 @@ class Store:
         for e in self.equilibria():
             by_point.setdefault(e["point"], []).append(e)
         rows = 0
+        scratch = f"{target}.writing-{os.getpid()}"
         try:
-            fh = open(target, "w", newline="")
+            fh = open(scratch, "w", newline="")
         except OSError as exc:
             raise InputError(f"{target}: cannot write the CSV file ({exc.strerror})") from None
         with fh:
@@ -213,7 +250,18 @@ class Store:
                                       _num(e["learning_rate_limit"]), _num(e["best_response_radius"]),
                                       p["reason"] or ""])
                     rows += 1
+        os.replace(scratch, target)  # a finished file or none: never half a CSV
         return rows
+
+
+def _free_name(path: str) -> str:
+    """``<path>.replaced-<time>``, with a counter if that name is taken: an older copy is never overwritten."""
+    stem = f"{path}.replaced-{time.strftime('%Y%m%d-%H%M%S')}"
+    name, k = stem, 1
+    while os.path.exists(name):
+        k += 1
+        name = f"{stem}-{k}"
+    return name
 
 
 def _num(v) -> str:
@@ -229,6 +277,7 @@ def _eq_row(point: int, k: int, e: dict) -> tuple:
 
 def _connect_existing(path: str) -> sqlite3.Connection:
     what = "expected a file written by `equipoise sweep`"
+    conn = None
     try:
         conn = sqlite3.connect(f"file:{path}?mode=rw", uri=True)
         ok = conn.execute("PRAGMA quick_check").fetchone()[0]
@@ -239,11 +288,22 @@ def _connect_existing(path: str) -> sqlite3.Connection:
             raise InputError(f"{path}: not an equipoise results store (missing tables); {what}")
         row = conn.execute("SELECT value FROM meta WHERE key = 'format'").fetchone()
     except sqlite3.DatabaseError as exc:
+        if conn is not None:
+            conn.close()
         raise InputError(f"{path}: not a readable results store ({exc}); {what}") from None
+    except InputError:
+        conn.close()
+        raise
+    try:
+        fmt = None if row is None else json.loads(row[0])
+    except (json.JSONDecodeError, TypeError):
+        fmt = row[0]
+    if row is None or fmt != FORMAT:
+        conn.close()
     if row is None:
         raise InputError(f"{path}: not an equipoise results store (no format entry); {what}")
-    if json.loads(row[0]) != FORMAT:
-        raise InputError(f"{path}: store format {json.loads(row[0])!r} is not this version's {FORMAT!r}; "
+    if fmt != FORMAT:
+        raise InputError(f"{path}: store format {fmt!r} is not this version's {FORMAT!r}; "
                          "run the sweep again with --new (the old file is kept aside)")
     return conn
 
@@ -263,7 +323,7 @@ def _create(conn: sqlite3.Connection, fingerprint: str, spec: dict, model: str, 
                      "starts INTEGER, equal_speeds TEXT, equal_abscissa REAL, player_speeds TEXT, "
                      "coordinate_speeds TEXT, hicksian INTEGER, learning_rate_limit REAL, best_response_radius REAL, "
                      "stability TEXT, PRIMARY KEY (point, k))")
-        conn.execute("CREATE VIEW results AS SELECT p.*, e.k, e.actions, e.payoffs, e.residual, e.nash, "
+        conn.execute("CREATE VIEW results AS SELECT p.*, e.k AS rank, e.actions, e.payoffs, e.residual, e.nash, "
                      "e.equal_speeds, e.equal_abscissa, e.player_speeds, e.coordinate_speeds, e.hicksian, "
                      "e.learning_rate_limit, e.best_response_radius "
                      "FROM points p LEFT JOIN equilibria e ON e.point = p.id")
