@@ -15,10 +15,11 @@ from ._homotopy import homotopy  # noqa: E402
 from ._loader import load_game  # noqa: E402
 from ._newton import RootResult, newton_solve  # noqa: E402
 from ._solve import Equilibrium, Solution, solve  # noqa: E402
-from ._status import Nash, PointStatus, Status  # noqa: E402
+from ._status import Nash, Outcome, PointStatus, Status  # noqa: E402
 from ._verify import Verification, verify  # noqa: E402
 from ._counterfactual import Counterfactual, counterfactual  # noqa: E402
 from .sweeps import Axis, SweepResult, SweepSpec, sweep  # noqa: E402
+from .dynamics import Basins, Simulation, basins, simulate  # noqa: E402
 from .families import (  # noqa: E402
     cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership, ownership_matrix)
 
@@ -26,6 +27,7 @@ __version__ = "0.1.0"
 
 __all__ = [
     "Axis",
+    "Basins",
     "Branch",
     "Counterfactual",
     "BranchPoint",
@@ -34,13 +36,16 @@ __all__ = [
     "Game",
     "InputError",
     "Nash",
+    "Outcome",
     "PointStatus",
     "RootResult",
+    "Simulation",
     "Solution",
     "Status",
     "SweepResult",
     "SweepSpec",
     "Verification",
+    "basins",
     "counterfactual",
     "cournot",
     "homotopy",
@@ -51,6 +56,7 @@ __all__ = [
     "merged_ownership",
     "newton_solve",
     "ownership_matrix",
+    "simulate",
     "solve",
     "sweep",
     "trace",

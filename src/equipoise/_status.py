@@ -71,3 +71,16 @@ class PointStatus(_Coded):
     @property
     def message(self) -> str:
         return self.value or "solved"
+
+
+class Outcome(_Coded):
+    """How a simulated learning or adjustment run ended; the value is the criterion, in words.
+
+    Distances are scaled by ``1 + max|x*|`` (the equilibrium's size) or by the
+    search region's size; see :func:`equipoise.simulate` for the thresholds.
+    """
+
+    converged = "ended within tolerance of an equilibrium (or of a stationary point) and stayed there"
+    cycling = "kept moving back and forth without settling and without decaying: an oscillation or a cycle"
+    diverged = "moved far away: non-finite, beyond the blow-up size, or its distance from the start grew by the blow-up factor"
+    undecided = "neither settled nor clearly diverging or cycling by the end of the horizon"

@@ -243,6 +243,61 @@ def _cmd_plot(args) -> int:
     return 0
 
 
+def _cmd_simulate(args) -> int:
+    from ._loader import load_game
+    from .dynamics import _summary, basins, plot_basins, plot_simulation, simulate
+
+    game = load_game(args.model)
+    params = _parse_sets(args.set or [])
+    rule = _parse_rule(args.rule or ["flow"], game)
+    speeds = _json_numbers("--speeds", args.speeds) if args.speeds else None
+    common = dict(rule=rule, speeds=speeds, steps=args.steps, dt=args.dt, lr=args.lr, seed=args.seed)
+    size = _parse_size(args.size)
+    if args.basins:
+        result = basins(game, params, starts=args.basins, **common)
+        out = _summary.basins_dict(result, game, args.model) if args.json else _summary.basins_text(result, game,
+                                                                                                      args.model)
+        draw = plot_basins
+    else:
+        start = _json_numbers("--start", args.start) if args.start else None
+        result = simulate(game, params, start=start, equilibrium=args.equilibrium - 1, perturb=args.perturb,
+                          **common)
+        out = _summary.simulation_dict(result, game, args.model) if args.json else \
+            _summary.simulation_text(result, game, args.model)
+        draw = plot_simulation
+    if args.plot:
+        draw(result, args.plot, game=game, size=size)
+    if args.json:
+        json.dump(out, sys.stdout, indent=2)
+        sys.stdout.write("\n")
+    else:
+        print(out + (f"\nwrote {args.plot}" if args.plot else ""))
+    return 0
+
+
+def _parse_rule(items: list[str], game):
+    if len(items) == 1 and "=" not in items[0]:
+        return items[0]
+    out = {}
+    for item in items:
+        player, sep, rule = item.partition("=")
+        if not sep or player.strip() not in game.players:
+            raise InputError(f"--rule {item!r}: expected RULE, or PLAYER=RULE for each player "
+                             f"({', '.join(game.players)})")
+        out[player.strip()] = rule.strip()
+    return out
+
+
+def _json_numbers(flag: str, text: str) -> list:
+    try:
+        value = json.loads(text)
+    except json.JSONDecodeError:
+        value = None
+    if not (isinstance(value, list) and value and _numeric(value)):
+        raise InputError(f"{flag} {text!r}: expected a JSON list of numbers, e.g. [1, 0.5]")
+    return value
+
+
 def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     if sets:
         p.add_argument("--set", action="append", metavar="NAME=VALUE",
@@ -333,6 +388,29 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--size", default="900x650", metavar="WxH", help="picture size in pixels (default 900x650)")
     p.add_argument("--out", required=True, metavar="FILE.png", help="the PNG file to write")
     p.set_defaults(func=_cmd_plot)
+    p = sub.add_parser("simulate", help="simulate learning or adjustment dynamics and say how they end")
+    p.add_argument("model", help="a Python file that defines `game`")
+    p.add_argument("--set", action="append", metavar="NAME=VALUE", help="override a parameter (repeatable)")
+    p.add_argument("--rule", action="append", metavar="RULE|PLAYER=RULE",
+                   help="flow (default), gradient, momentum, adam, optimistic, best_response, alternating; "
+                        "or PLAYER=RULE per player to mix optimisers (repeatable)")
+    p.add_argument("--speeds", metavar="[k1,k2,...]", help="one speed per player or per action (JSON list)")
+    p.add_argument("--steps", type=int, default=2000, help="steps to simulate (default 2000)")
+    p.add_argument("--perturb", type=float, default=1e-6,
+                   help="relative perturbation of the equilibrium the run starts from (default 1e-6)")
+    p.add_argument("--equilibrium", type=int, default=1, metavar="K",
+                   help="start next to the K-th equilibrium found (1-based, default 1)")
+    p.add_argument("--start", metavar="[x1,x2,...]", help="start from these stacked actions instead")
+    p.add_argument("--dt", type=float, help="time step of the flow (default from the Jacobian's size)")
+    p.add_argument("--lr", type=float, help="learning rate of the optimisers (default from the Jacobian's size)")
+    p.add_argument("--seed", type=int, default=0, help="seed of the perturbation and of the solve (default 0)")
+    p.add_argument("--basins", type=int, metavar="N", help="run N Sobol starts at once and report the share "
+                   "reaching each equilibrium")
+    p.add_argument("--plot", metavar="FILE.png", help="draw the run (actions over time; phase plane for two "
+                   "actions) or the basins")
+    p.add_argument("--size", default="900x650", metavar="WxH", help="picture size in pixels (default 900x650)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.set_defaults(func=_cmd_simulate)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
     p.set_defaults(func=_cmd_demo)
@@ -341,7 +419,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
-    for flag in ("starts", "workers", "sample", "deviation_starts", "batch"):
+    for flag in ("starts", "workers", "sample", "deviation_starts", "batch", "steps", "basins"):
         value = getattr(args, flag, None)
         if value is not None and value < 1:
             print(f"equipoise {args.command}: error: --{flag.replace('_', '-')}: expected a positive whole number, "

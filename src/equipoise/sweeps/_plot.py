@@ -180,6 +180,10 @@ def plot_store(store, out, *, x: str, y: str | None = None, color: str = "coordi
                                 "figure.titlesize": 11.5 * scale}):
         fig = Figure(figsize=((width + 0.01) / _DPI, (height + 0.01) / _DPI), dpi=_DPI, layout="constrained")
         FigureCanvasAgg(fig)
+        # The caution gets its own strip along the bottom, so the legend below the panels never covers it.
+        whole = fig
+        fig, foot = whole.subfigures(2, 1, height_ratios=[height - 14 * scale, 14 * scale])
+        foot.text(0.995, 0.5, PICTURE_CAUTION, ha="right", va="center", fontsize=6.5 * scale, color="#777777")
         if yi is not None:
             shown = _draw_map(fig, points, eqs, color, xi, yi, grid, scales, axes, scale)
             what = f"{_TITLES[color]} over {axes[xi]} and {axes[yi]}"
@@ -194,9 +198,8 @@ def plot_store(store, out, *, x: str, y: str | None = None, color: str = "coordi
         per_line = max(int(width / (0.55 * 11.5 * scale * _DPI / 72)), 20)
         lines = [f"{os.path.basename(str(meta.get('model', '?')))}: {what}", f"{os.path.basename(path)}: {note}"]
         fig.suptitle("\n".join(textwrap.fill(t, per_line) for t in lines))
-        fig.text(0.995, 0.004, PICTURE_CAUTION, ha="right", va="bottom", fontsize=6.5 * scale, color="#777777")
         try:
-            fig.savefig(out, dpi=_DPI, format="png")
+            whole.savefig(out, dpi=_DPI, format="png")
         except OSError as exc:
             raise InputError(f"--out {out}: cannot write the PNG ({exc.strerror or exc})") from None
     return out
@@ -401,5 +404,11 @@ def _legend(fig, shown: list[str]) -> None:
     handles = [Patch(facecolor=CATEGORIES[k][1], edgecolor="#8a8a8a", linewidth=0.4, label=CATEGORIES[k][0])
                for k in shown]
     # Below the panels, so it never covers data and the title keeps the full width.
-    fig.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 3), frameon=False,
+    import matplotlib
+
+    # As many columns as the longest label lets fit (about 0.55 em a character, 4.5 em of handle).
+    em = float(matplotlib.rcParams["legend.fontsize"]) * _DPI / 72
+    column = em * (0.55 * max(len(h.get_label()) for h in handles) + 4.5)
+    cols = min(len(handles), 3, max(1, int(0.95 * fig.figure.get_figwidth() * _DPI / column)))
+    fig.legend(handles=handles, loc="outside lower center", ncols=cols, frameon=False,
                handlelength=1.4, columnspacing=1.6)
