@@ -21,11 +21,18 @@ from ._counterfactual import Counterfactual, counterfactual  # noqa: E402
 from .sweeps import Axis, SweepResult, SweepSpec, sweep  # noqa: E402
 from .dynamics import Basins, Simulation, basins, simulate  # noqa: E402
 from .families import (  # noqa: E402
-    cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership, ownership_matrix)
+    allocation_efficiency, cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership,
+    minmax_quadratic, network_game, ownership_matrix, proportional_allocation, public_good, tullock)
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "allocation_efficiency",
+    "minmax_quadratic",
+    "network_game",
+    "proportional_allocation",
+    "public_good",
+    "tullock",
     "Axis",
     "Basins",
     "Branch",
