@@ -120,3 +120,23 @@ def test_ctrl_c_commits_finished_batches_and_says_how_to_resume(uninterrupted, t
         assert "run the same command again to resume" in out
     sweep(spec_from_flags(FERRIES, ["c[2]=20:90:60"], {}, None, batch=2, starts=2), store, progress=False)
     assert rows(store) == uninterrupted
+
+
+def test_ctrl_c_on_worker_processes_keeps_the_batches_in_flight(uninterrupted, tmp_path):
+    store = tmp_path / "pool.sqlite"
+    cmd = [sys.executable, "-m", "equipoise.cli", "sweep", *ARGS, "--store", str(store), "--engine", "processes",
+           "--workers", "2"]
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    _wait_for_batches(proc, store, 2)
+    before = _stored_batches(store)
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=180)
+    assert proc.returncode == 130 and "Traceback" not in err, (out, err)
+    after = _stored_batches(store)
+    assert after >= before  # the batches running at the interrupt were finished and stored
+    points, eqs = rows(store)
+    assert len(points) == 2 * after
+    whole = {p["id"]: p for p in uninterrupted[0]}
+    assert all(p == whole[p["id"]] for p in points)  # whole batches, each as an uninterrupted run stores it
+    whole_eqs = {(e["point"], e["k"]): e for e in uninterrupted[1]}
+    assert all(e == whole_eqs[(e["point"], e["k"])] for e in eqs)

@@ -77,8 +77,18 @@ def processes(spec, model_text: str, fingerprint: str, todo: list[int], workers:
                                   initializer=_quiet_worker)
     try:
         futures = [pool.submit(run_batch, spec, model_text, fingerprint, b) for b in todo]
-        for fut in cf.as_completed(futures):
-            yield fut.result()
+        handed: set = set()
+        try:
+            for fut in cf.as_completed(futures):
+                handed.add(fut)
+                yield fut.result()
+        except KeyboardInterrupt:
+            # Stop: drop what has not started, hand over what is running when it finishes, then stop.
+            left = [f for f in futures if f not in handed and not f.cancel()]
+            for fut in cf.as_completed(left):
+                if fut.exception() is None:
+                    yield fut.result()
+            raise
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
 
