@@ -235,13 +235,18 @@ def _step_size(game, theta, x_ref: np.ndarray, speeds: np.ndarray, kind: str, dt
     return 0.1 / rho
 
 
-def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.ndarray,
+def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.ndarray | None,
                   scale: float) -> tuple[Outcome, int | None, int | None, dict[str, float]]:
-    """``(outcome, equilibrium index, index of the step it settled, stats)``; see the module docstring."""
+    """``(outcome, equilibrium index, index of the step it settled, stats)``; see the module docstring.
+
+    ``reference`` is the point whose distance growth means divergence (None: only a blow-up does).
+    """
     T = path.shape[0]
     stats: dict[str, float] = {}
     finite = np.all(np.isfinite(path), axis=1)
     if not finite.all() or np.max(np.abs(path[finite])) > BLOWUP * scale:
+        if reference is None:
+            return Outcome.diverged, None, None, {"blowup": True}
         g = np.max(np.abs(path[finite] - reference), axis=1) / scale
         return Outcome.diverged, None, None, {"blowup": True, "growth": float(np.max(g) / max(g[0], 1e-300))}
     E = np.stack(equilibria) if equilibria else np.zeros((0, path.shape[1]))
@@ -249,8 +254,9 @@ def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.
         D = np.max(np.abs(path[:, None, :] - E[None]), axis=2) / scale
         best = int(np.argmin(D[-1]))
         stats["final_distance"] = float(D[-1, best])
-    g = np.max(np.abs(path - reference), axis=1) / scale
-    stats["growth"] = float(np.max(g[-max(1, T // 4):]) / max(g[0], 1e-300))
+    if reference is not None:  # with no known equilibrium only a blow-up counts as divergence
+        g = np.max(np.abs(path - reference), axis=1) / scale
+        stats["growth"] = float(np.max(g[-max(1, T // 4):]) / max(g[0], 1e-300))
     tail = path[-max(2, T // 10):]
     moving = float(np.max(np.max(tail, axis=0) - np.min(tail, axis=0))) / scale
     if len(E) and D[-1, best] <= CONVERGED_TOL:
@@ -258,7 +264,7 @@ def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.
         return Outcome.converged, best, int(settled[-1] + 1) if settled.size else 0, stats
     if moving <= CONVERGED_TOL:
         return Outcome.converged, None, None, stats
-    if stats["growth"] >= DIVERGE_FACTOR and g[-1] > g[0]:
+    if reference is not None and stats["growth"] >= DIVERGE_FACTOR and g[-1] > g[0]:
         return Outcome.diverged, None, None, stats
     q = max(1, T // 4)
     last, before = path[-q:], path[-2 * q:-q]
@@ -346,7 +352,7 @@ def simulate(game, params: Mapping[str, Any] | None = None, *, rule="flow", spee
         reference = x_star
     else:
         x0 = _start_vector(game, start)
-        reference = min(known, key=lambda e: np.max(np.abs(e - x0))) if known else x0
+        reference = min(known, key=lambda e: np.max(np.abs(e - x0))) if known else None
     size = _step_size(game, theta, x0, K, kind, dt, lr)
     one, _ = _runner(game, rules, int(steps), int(inner_steps))
     with user_code(game, "payoffs"):
@@ -390,7 +396,7 @@ def basins(game, params: Mapping[str, Any] | None = None, *, rule="flow", speeds
     scale = 1.0 + max([float(np.max(np.abs(e))) for e in known] + [float(np.max(np.abs(hi))), float(np.max(np.abs(lo)))])
     outcomes, reached = [], []
     for s in range(paths.shape[0]):
-        ref = min(known, key=lambda e: np.max(np.abs(e - x0[s]))) if known else x0[s]
+        ref = min(known, key=lambda e: np.max(np.abs(e - x0[s]))) if known else None
         out, which, _, _ = classify_path(paths[s], known, ref, scale)
         outcomes.append(out)
         reached.append(-1 if which is None else which)

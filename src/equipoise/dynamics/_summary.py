@@ -45,6 +45,8 @@ def simulation_text(sim, game, model: str) -> str:
     what = sim.outcome.name
     if sim.equilibrium is not None:
         what += f" to equilibrium {sim.equilibrium + 1}"
+    elif sim.outcome.name == "converged":
+        what += " to a rest point that is not among the known Nash equilibria"
     if sim.converged_at is not None:
         what += f" (settled by {unit} {sim.converged_at:.4g})"
     lines.append(f"outcome: {what} -- {sim.outcome.value}")
