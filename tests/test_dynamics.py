@@ -187,3 +187,15 @@ def test_simulate_command_text_json_plot_and_bad_input(tmp_path, capsys):
         assert main(["simulate", model, *argv]) == 2
         err = capsys.readouterr().err
         assert message in err and err.count("\n") == 1
+
+
+def test_json_of_a_blown_up_run_is_strict_json(capsys):
+    from equipoise.cli import main
+
+    # The critic game with a = -2 is unstable at equal speeds (trace 2 - 1 > 0): unbounded actions
+    # overflow to infinity within the horizon.
+    assert main(["simulate", "models/minmax_loom_critic.py", "--set", "a=-2", "--set", "c=1", "--start", "[0.3,-0.2]",
+                 "--dt", "5", "--steps", "200", "--json"]) == 0
+    text = capsys.readouterr().out
+    data = json.loads(text, parse_constant=lambda c: pytest.fail(f"non-standard JSON token {c}"))
+    assert data["outcome"] == "diverged" and data["stats"]["blowup"] is True

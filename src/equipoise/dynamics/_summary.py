@@ -9,6 +9,16 @@ import numpy as np
 from .._report import CAUTION
 
 
+def _finite(value):
+    """JSON has no NaN or infinity: non-finite numbers (a blown-up run) become null."""
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if value is None or isinstance(value, bool):
+        return value
+    v = float(value)
+    return v if np.isfinite(v) else None
+
+
 def _rule_text(rule: dict[str, str]) -> str:
     kinds = set(rule.values())
     return next(iter(kinds)) if len(kinds) == 1 else ", ".join(f"{p}: {r}" for p, r in rule.items())
@@ -25,11 +35,11 @@ def simulation_dict(sim, game, model: str) -> dict[str, Any]:
         "outcome": sim.outcome.name,
         "criterion": sim.outcome.value,
         "equilibrium": None if sim.equilibrium is None else sim.equilibrium + 1,
-        "converged_at": sim.converged_at,
-        "final": {game.coordinate_name(k): float(v) for k, v in enumerate(sim.path[-1])},
+        "converged_at": _finite(sim.converged_at),
+        "final": {game.coordinate_name(k): _finite(v) for k, v in enumerate(sim.path[-1])},
         "equilibria": [e.tolist() for e in sim.equilibria],
-        "stats": {k: (None if v is None else float(v)) for k, v in sim.stats.items()},
-        "path": {"times": sim.times[::stride].tolist(), "actions": sim.path[::stride].tolist()},
+        "stats": {k: _finite(v) for k, v in sim.stats.items()},
+        "path": {"times": sim.times[::stride].tolist(), "actions": _finite(sim.path[::stride].tolist())},
         "caution": CAUTION,
     }
 
@@ -59,7 +69,8 @@ def simulation_text(sim, game, model: str) -> str:
 
 
 def basins_dict(b, game, model: str) -> dict[str, Any]:
-    return {"model": model, "rule": dict(b.rule), "speeds": b.speeds.tolist(), "settings": dict(b.settings),
+    return {"model": model, "rule": dict(b.rule), "speeds": b.speeds.tolist(),
+            "settings": {k: _finite(v) if isinstance(v, float) else v for k, v in b.settings.items()},
             "equilibria": [{"actions": e.tolist(), "share": s} for e, s in zip(b.equilibria, b.shares)],
             "outcomes": dict(b.counts), "caution": CAUTION}
 
