@@ -152,7 +152,7 @@ def test_classify_path_criteria():
     ({"speeds": [1.0, -2.0]}, "speeds: expected positive finite numbers"),
     ({"steps": 0}, "steps: expected a positive whole number"),
     ({"start": [1.0]}, "start: expected 2 finite numbers"),
-    ({"equilibrium": 3}, "equilibrium: expected a number from 0 to 0"),
+    ({"equilibrium": 3}, "equilibrium: 1 equilibria were found; expected an index from 0 to 0"),
     ({"perturb": -1.0}, "perturb: expected a non-negative number"),
     ({"dt": 0.0}, "dt: expected a positive number"),
 ])

@@ -12,8 +12,9 @@ the action bounds after each step.
   given :math:`-F_i`), with its own learning rate ``lr * k``;
 * ``best_response`` / ``alternating``: simultaneous or sequential (players in
   order) best responses, each an inner maximisation of the player's payoff
-  over its own actions (projected Newton steps with backtracking; a gradient
-  step where the own Hessian is not negative definite).
+  over its own actions (projected Newton steps with backtracking, solved by
+  conjugate gradients; a gradient step where the own Hessian is not negative
+  definite).
 """
 
 from __future__ import annotations
@@ -105,6 +106,32 @@ def learning(game, rules: Mapping[str, str], lr: Mapping[str, float], speeds) ->
     return Rule(init, step)
 
 
+def _conjugate_gradients(M, g):
+    """Solve ``M d = g`` for positive definite ``M`` by ``n`` conjugate-gradient steps.
+
+    No LAPACK call: factorisations inside a vmapped loop can deadlock jaxlib's CPU
+    kernels (DEVELOPERS.md). Returns ``(d, ok)``; ``ok`` is False when a search
+    direction met non-positive curvature (``M`` not positive definite).
+    """
+    n = g.shape[0]
+
+    def body(_, c):
+        d, r, p, rr, ok = c
+        Mp = M @ p
+        curv = p @ Mp
+        live = rr > 1e-300
+        ok = ok & ((curv > 0) | ~live)
+        alpha = jnp.where(live & (curv > 0), rr / jnp.where(curv > 0, curv, 1.0), 0.0)
+        d = d + alpha * p
+        r = r - alpha * Mp
+        rr_new = r @ r
+        p = r + jnp.where(live, rr_new / jnp.where(live, rr, 1.0), 0.0) * p
+        return d, r, p, rr_new, ok
+
+    d, _, _, _, ok = lax.fori_loop(0, 2 * n, body, (jnp.zeros_like(g), g, g, g @ g, jnp.asarray(True)))
+    return d, ok & jnp.all(jnp.isfinite(d))
+
+
 def best_responses(game, alternating: bool, inner_steps: int) -> Rule:
     """Simultaneous (or, with ``alternating``, sequential) best responses by inner maximisation."""
     project = _project(game)
@@ -124,9 +151,7 @@ def best_responses(game, alternating: bool, inner_steps: int) -> Rule:
             g = jnp.where(mine, game.pseudo_gradient(y, theta), 0.0)
             H = game.jacobian(y, theta)
             M = jnp.where(block, -H, jnp.eye(n))  # own block of -Hessian; identity elsewhere
-            L = jnp.linalg.cholesky(M)
-            newton = jax.scipy.linalg.cho_solve((L, True), g)
-            ok = jnp.all(jnp.isfinite(newton))
+            newton, ok = _conjugate_gradients(M, g)
             gmax = jnp.max(jnp.abs(g))
             d = jnp.where(ok, newton, g * (0.1 * width / (gmax + 1e-300)))
             d = jnp.where(jnp.isfinite(d), d, 0.0)
@@ -151,9 +176,8 @@ def best_responses(game, alternating: bool, inner_steps: int) -> Rule:
             for i in range(N):  # players in order, each answering the latest actions
                 x = jnp.where(jnp.asarray(owner) == i, respond(i, x, theta), x)
             return (x,)
-        # One vmap over players keeps their factorisations in one batched LAPACK call
-        # (independent LAPACK calls in one graph can deadlock on CPU; see DEVELOPERS.md).
-        answers = jax.vmap(lambda i: respond(i, x, theta))(jnp.arange(N))
+        # A loop over players, not a vmap: a vmapped nested while loop was seen to hang XLA on CPU.
+        answers = jnp.stack([respond(i, x, theta) for i in range(N)])
         return (jnp.sum(jnp.where(jnp.asarray(owner)[None, :] == jnp.arange(N)[:, None], answers, 0.0), axis=0),)
 
     return Rule(lambda x: (x,), step)

@@ -12,12 +12,15 @@ scaled by ``s = 1 + max |x|`` over the known equilibria and the start:
 * ``converged``: the last state is within ``CONVERGED_TOL`` of a known
   equilibrium (``equilibrium`` names it), or the state moved less than
   ``CONVERGED_TOL`` over the last tenth of the run (a stationary point that is
-  not a known equilibrium: ``equilibrium`` is None); ``converged_at`` is the
+  not a known equilibrium, where the KKT residual is small too: ``equilibrium``
+  is None); ``converged_at`` is the
   first recorded time after which the run stays within ``10 * CONVERGED_TOL``;
-* ``diverged``: a non-finite state, a state larger than ``BLOWUP * s``, or a
-  distance from the reference point (the equilibrium perturbed, or the known
-  equilibrium nearest the start) that grew to ``DIVERGE_FACTOR`` times its
-  initial value;
+* ``diverged``: a non-finite state, a state larger than ``BLOWUP`` times
+  ``s`` (or the start's size, if larger), or a distance from the reference
+  point (the equilibrium perturbed, or the known equilibrium nearest the
+  start) that grew to ``DIVERGE_FACTOR`` times its initial value and kept
+  growing (the last quarter's largest distance at least ten times the first
+  quarter's);
 * ``cycling``: none of these, and over the last quarter of the run the state
   still sweeps a range above ``CYCLE_FLOOR`` that is at least half the range
   it swept over the quarter before, and some action turns back at least twice
@@ -46,6 +49,8 @@ CONVERGED_TOL = 1e-8
 DIVERGE_FACTOR = 1e3
 BLOWUP = 1e6
 CYCLE_FLOOR = 1e-10
+#: Largest number of recorded values (steps x actions) of one run.
+MAX_RECORDED = 50_000_000
 
 
 @dataclass(frozen=True)
@@ -191,6 +196,23 @@ def _known(game, params, equilibria, seed) -> list[np.ndarray]:
 
 
 # ---------------------------------------------------------------- running
+def _scale(known: list[np.ndarray], fallback: np.ndarray) -> float:
+    """Distances are measured on the equilibria's scale (the start's only when none is known)."""
+    sizes = [float(np.max(np.abs(e))) for e in known] or [float(np.max(np.abs(fallback)))]
+    return 1.0 + max(sizes)
+
+
+def _rest(game, theta, x: np.ndarray, scale: float) -> float | None:
+    """Scaled natural KKT residual at ``x`` (None if not finite)."""
+    if not np.all(np.isfinite(x)):
+        return None
+    field = game.cached("field", lambda: jax.jit(game.pseudo_gradient))
+    F = np.asarray(field(jnp.asarray(x), theta))
+    r = x - np.clip(x + F, game.lower, game.upper)
+    return float(np.max(np.abs(r))) / scale if np.all(np.isfinite(r)) else None
+
+
+
 def _runner(game, rules: dict[str, str], steps: int, inner_steps: int):
     kind = next(iter(rules.values()))
     key = ("dynamics", tuple(rules.items()), steps, inner_steps)
@@ -236,16 +258,21 @@ def _step_size(game, theta, x_ref: np.ndarray, speeds: np.ndarray, kind: str, dt
 
 
 def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.ndarray | None,
-                  scale: float) -> tuple[Outcome, int | None, int | None, dict[str, float]]:
+                  scale: float, rest_residual: float | None = None) -> tuple[Outcome, int | None, int | None, dict[str, float]]:
     """``(outcome, equilibrium index, index of the step it settled, stats)``; see the module docstring.
 
     ``reference`` is the point whose distance growth means divergence (None: only a blow-up does).
+    ``rest_residual``, the scaled KKT residual at the last state, must be small for a run that
+    stopped moving away from any known equilibrium to count as converged (a tiny step is not rest).
     """
     T = path.shape[0]
     stats: dict[str, float] = {}
     finite = np.all(np.isfinite(path), axis=1)
-    if not finite.all() or np.max(np.abs(path[finite])) > BLOWUP * scale:
+    limit = BLOWUP * max(scale, 1.0 + float(np.max(np.abs(path[0]))) if finite[0] else scale)
+    if not finite.all() or np.max(np.abs(path[finite])) > limit:
         if reference is None:
+            return Outcome.diverged, None, None, {"blowup": True}
+        if not finite[0]:
             return Outcome.diverged, None, None, {"blowup": True}
         g = np.max(np.abs(path[finite] - reference), axis=1) / scale
         return Outcome.diverged, None, None, {"blowup": True, "growth": float(np.max(g) / max(g[0], 1e-300))}
@@ -262,9 +289,11 @@ def classify_path(path: np.ndarray, equilibria: list[np.ndarray], reference: np.
     if len(E) and D[-1, best] <= CONVERGED_TOL:
         settled = np.nonzero(D[:, best] > 10 * CONVERGED_TOL)[0]
         return Outcome.converged, best, int(settled[-1] + 1) if settled.size else 0, stats
-    if moving <= CONVERGED_TOL:
+    if moving <= CONVERGED_TOL and (rest_residual is None or rest_residual <= CONVERGED_TOL * 1e2):
         return Outcome.converged, None, None, stats
-    if reference is not None and stats["growth"] >= DIVERGE_FACTOR and g[-1] > g[0]:
+    q = max(1, T // 4)
+    if reference is not None and stats["growth"] >= DIVERGE_FACTOR and g[-1] > g[0] \
+            and np.max(g[-q:]) >= 10 * np.max(g[:q]):  # sustained growth, not one early jump
         return Outcome.diverged, None, None, stats
     q = max(1, T // 4)
     last, before = path[-q:], path[-2 * q:-q]
@@ -333,6 +362,9 @@ def simulate(game, params: Mapping[str, Any] | None = None, *, rule="flow", spee
     kind = next(iter(rules.values()))
     steps = _positive("steps", steps, whole=True)
     inner_steps = _positive("inner_steps", inner_steps, whole=True)
+    if steps * game.n > MAX_RECORDED:
+        raise InputError(f"steps: {steps} steps of {game.n} actions exceed the {MAX_RECORDED} numbers a run "
+                         "records; expected fewer steps")
     _positive("dt", dt), _positive("lr", lr)
     if isinstance(perturb, bool) or not isinstance(perturb, (int, float)) or not np.isfinite(perturb) or perturb < 0:
         raise InputError(f"perturb: expected a non-negative number, got {perturb!r}")
@@ -344,21 +376,25 @@ def simulate(game, params: Mapping[str, Any] | None = None, *, rule="flow", spee
             raise InputError("no equilibrium was found to start from; give a start")
         if isinstance(equilibrium, bool) or not isinstance(equilibrium, (int, np.integer)) \
                 or not 0 <= equilibrium < len(known):
-            raise InputError(f"equilibrium: expected a number from 0 to {len(known) - 1}, got {equilibrium!r}")
+            raise InputError(f"equilibrium: {len(known)} equilibria were found; expected an index from 0 to "
+                             f"{len(known) - 1} (the command line's --equilibrium counts from 1), got {equilibrium!r}")
         x_star = known[int(equilibrium)]
         u = np.random.default_rng(seed).standard_normal(game.n)
-        x0 = np.clip(x_star + perturb * (1.0 + np.max(np.abs(x_star))) * u / np.max(np.abs(u)),
-                     game.lower, game.upper)
+        with np.errstate(over="ignore", invalid="ignore"):  # a huge perturbation is refused just below
+            x0 = np.clip(x_star + perturb * (1.0 + np.max(np.abs(x_star))) * u / np.max(np.abs(u)),
+                         game.lower, game.upper)
         reference = x_star
     else:
         x0 = _start_vector(game, start)
         reference = min(known, key=lambda e: np.max(np.abs(e - x0))) if known else None
+    if not np.all(np.isfinite(x0)):
+        raise InputError(f"perturb: {perturb!r} gives a non-finite start; expected a small relative perturbation")
     size = _step_size(game, theta, x0, K, kind, dt, lr)
     one, _ = _runner(game, rules, int(steps), int(inner_steps))
     with user_code(game, "payoffs"):
         path = np.asarray(one(jnp.asarray(x0), theta, jnp.asarray(K), jnp.asarray(size)))
-    scale = 1.0 + max([float(np.max(np.abs(e))) for e in known] + [float(np.max(np.abs(x0)))])
-    outcome, which, at, stats = classify_path(path, known, reference, scale)
+    scale = _scale(known, x0)
+    outcome, which, at, stats = classify_path(path, known, reference, scale, _rest(game, theta, path[-1], scale))
     times = np.arange(path.shape[0]) * (size if kind == "flow" else 1.0)
     settings = {"steps": int(steps), "start": x0.tolist(), "perturb": float(perturb) if start is None else None}
     settings["dt" if kind == "flow" else "lr"] = size if kind not in ("best_response", "alternating") else None
@@ -393,11 +429,11 @@ def basins(game, params: Mapping[str, Any] | None = None, *, rule="flow", speeds
     _, many = _runner(game, rules, int(steps), int(inner_steps))
     with user_code(game, "payoffs"):
         paths = np.asarray(many(jnp.asarray(x0), theta, jnp.asarray(K), jnp.asarray(size)))
-    scale = 1.0 + max([float(np.max(np.abs(e))) for e in known] + [float(np.max(np.abs(hi))), float(np.max(np.abs(lo)))])
+    scale = _scale(known, np.concatenate([lo, hi]))
     outcomes, reached = [], []
     for s in range(paths.shape[0]):
         ref = min(known, key=lambda e: np.max(np.abs(e - x0[s]))) if known else None
-        out, which, _, _ = classify_path(paths[s], known, ref, scale)
+        out, which, _, _ = classify_path(paths[s], known, ref, scale, _rest(game, theta, paths[s, -1], scale))
         outcomes.append(out)
         reached.append(-1 if which is None else which)
     reached = np.array(reached)
