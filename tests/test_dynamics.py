@@ -199,3 +199,11 @@ def test_json_of_a_blown_up_run_is_strict_json(capsys):
     text = capsys.readouterr().out
     data = json.loads(text, parse_constant=lambda c: pytest.fail(f"non-standard JSON token {c}"))
     assert data["outcome"] == "diverged" and data["stats"]["blowup"] is True
+
+
+def test_bad_plot_path_is_refused_before_the_run(capsys):
+    from equipoise.cli import main
+
+    assert main(["simulate", "models/cournot_saltmere_ferries.py", "--plot", "run.jpg"]) == 2
+    err = capsys.readouterr().err
+    assert "--plot 'run.jpg': expected a file name ending in .png" in err and err.count("\n") == 1

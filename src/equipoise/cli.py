@@ -253,6 +253,14 @@ def _cmd_simulate(args) -> int:
     speeds = _json_numbers("--speeds", args.speeds) if args.speeds else None
     common = dict(rule=rule, speeds=speeds, steps=args.steps, dt=args.dt, lr=args.lr, seed=args.seed)
     size = _parse_size(args.size)
+    if args.plot:  # before the run, and named by this command's flag
+        from .sweeps._plot import _check_out, _check_size
+
+        try:
+            _check_out(args.plot)
+            _check_size(size)
+        except InputError as exc:
+            raise InputError(str(exc).replace("--out", "--plot", 1)) from None
     if args.basins:
         result = basins(game, params, starts=args.basins, **common)
         out = _summary.basins_dict(result, game, args.model) if args.json else _summary.basins_text(result, game,
