@@ -1,7 +1,6 @@
 """Sweeps through the Python entry point: closed forms at every point, the store's contract."""
 
 import itertools
-import json
 import os
 import sqlite3
 from pathlib import Path

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
-import jax.numpy as jnp
 import numpy as np
 
 from .._errors import InputError

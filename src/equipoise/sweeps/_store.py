@@ -22,8 +22,6 @@ import json
 import os
 import sqlite3
 import time
-from collections.abc import Iterable
-from typing import Any
 
 from .._errors import InputError
 
