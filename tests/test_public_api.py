@@ -41,6 +41,7 @@ PUBLIC = {
     "Verification",
     "counterfactual",
     "cournot",
+    "fixed_point_solve",
     "homotopy",
     "linear_bertrand",
     "load_game",

@@ -14,6 +14,7 @@ from ._game import Game  # noqa: E402
 from ._homotopy import homotopy  # noqa: E402
 from ._loader import load_game  # noqa: E402
 from ._newton import RootResult, newton_solve  # noqa: E402
+from ._fixed_point import fixed_point_solve  # noqa: E402
 from ._solve import Equilibrium, Solution, solve  # noqa: E402
 from ._status import Nash, Outcome, PointStatus, Status  # noqa: E402
 from ._verify import Verification, verify  # noqa: E402
@@ -55,6 +56,7 @@ __all__ = [
     "basins",
     "counterfactual",
     "cournot",
+    "fixed_point_solve",
     "homotopy",
     "linear_bertrand",
     "load_game",

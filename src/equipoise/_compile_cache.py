@@ -14,4 +14,4 @@ def use_compile_cache() -> None:
     import jax
 
     jax.config.update("jax_compilation_cache_dir", where)
-    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.2)
+    jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)

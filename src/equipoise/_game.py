@@ -66,6 +66,18 @@ class Game:
     producer_surplus : callable, optional
         ``producer_surplus(x, theta) -> scalar``; default the sum of payoffs
         (needed where payoffs are weighted, e.g. ownership-weighted profits).
+    fixed_point : callable, optional
+        ``fixed_point(x, theta) -> x_new`` on stacked actions, a map whose
+        fixed points are exactly the game's first-order points and which
+        converges by plain iteration from the search box (a family supplies
+        one where theory gives it, e.g. the logit markup equation); used by
+        :func:`equipoise.fixed_point_solve` and ``solve(method="fixed_point")``.
+    best_response : callable, optional
+        ``best_response(x, theta) -> stacked actions`` whose block ``i`` is a
+        *global* maximiser of player ``i``'s payoff given the others' actions
+        in ``x``. Only a family that can prove this supplies it (the logit
+        family does, by a closed form); verification then computes each
+        player's gain exactly instead of searching for deviations.
 
     Examples
     --------
@@ -93,6 +105,8 @@ class Game:
         name: str | None = None,
         consumer_surplus: Callable[[dict, dict], Any] | None = None,
         producer_surplus: Callable[[dict, dict], Any] | None = None,
+        fixed_point: Callable[[Any, dict], Any] | None = None,
+        best_response: Callable[[Any, dict], Any] | None = None,
     ):
         if not isinstance(players, Mapping) or not players:
             raise InputError("players: expected a non-empty mapping of player name to number of actions")
@@ -120,6 +134,11 @@ class Game:
         if producer_surplus is not None and not callable(producer_surplus):
             raise InputError("producer_surplus: expected a function producer_surplus(x, theta) -> number")
         self.producer_surplus = producer_surplus
+        for label, hook in (("fixed_point", fixed_point), ("best_response", best_response)):
+            if hook is not None and not callable(hook):
+                raise InputError(f"{label}: expected a function {label}(x, theta) -> stacked actions")
+        self.fixed_point = fixed_point
+        self.best_response = best_response
         self.name = name
         self.source: str | None = None
         self.defaults: dict[str, np.ndarray] = {

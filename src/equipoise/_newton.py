@@ -17,8 +17,26 @@ Newton steps on :math:`\Phi` are globalised by an Armijo line search on
 or not a descent direction (singular Jacobian), a Levenberg--Marquardt step
 with damping :math:`\|\Phi\|` is taken instead.
 
+Two linear algebra paths compute the step (``linear=``):
+
+* ``"dense"``: the Jacobian of :math:`\Phi` by forward mode (``n`` JVPs,
+  which for a square system costs the same as reverse mode and keeps the
+  memory of one pass) and one batched LU solve of the Newton and
+  Levenberg--Marquardt systems; about :math:`n^3/3` flops a step.
+* ``"krylov"``: matrix-free inexact Newton. The Newton system is solved by
+  restarted GMRES on Jacobian-vector products (``jax.jvp``), never forming
+  the Jacobian; the fallback solves the Levenberg--Marquardt normal equations
+  by conjugate gradients on JVPs and VJPs. The cost of a step is a few dozen
+  evaluations of :math:`\Phi`, so it grows like one evaluation (often
+  :math:`O(n)`) when GMRES converges in few iterations, as it does for
+  games whose Jacobian is a diagonal plus a few low-rank terms (logit demand).
+
 References
 ----------
+Dembo, Eisenstat & Steihaug (1982), "Inexact Newton methods", SIAM J. Numer.
+Anal. 19(2) (the forcing term of the Krylov path).
+Saad & Schultz (1986), "GMRES: a generalized minimal residual algorithm for
+solving nonsymmetric linear systems", SIAM J. Sci. Stat. Comput. 7(3).
 Qi & Sun (1993), "A nonsmooth version of Newton's method", Math. Programming.
 De Luca, Facchinei & Kanzow (1996), "A semismooth equation approach to the
 solution of nonlinear complementarity problems", Math. Programming.
@@ -103,7 +121,14 @@ class _Loop(NamedTuple):
     done: jax.Array
 
 
-def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100):
+#: The linear algebra paths of :func:`newton_solve`.
+LINEAR = ("dense", "krylov")
+
+#: GMRES settings of the Krylov path: restart length and most restarts per Newton step.
+KRYLOV_RESTART, KRYLOV_RESTARTS = 30, 4
+
+
+def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100, linear="dense"):
     r"""Find a KKT point of ``game`` from ``x0`` by globalised semismooth Newton.
 
     Parameters
@@ -122,6 +147,10 @@ def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100)
         Requiring both rules out "roots at infinity", where payoffs flatten
         out and the gradient vanishes without an equilibrium.
     max_steps : int
+    linear : {"dense", "krylov"}
+        How each Newton step is computed (see the module notes): a dense
+        Jacobian and LU, or matrix-free GMRES on Jacobian-vector products
+        (for large games).
 
     Returns
     -------
@@ -143,10 +172,61 @@ def newton_solve(game, x0, theta=None, *, ftol=1e-10, xtol=1e-10, max_steps=100)
         theta = game.theta()
     x0 = jnp.asarray(x0, dtype=float)
 
+    direction = _direction(linear)
+
     def residual_fn(x):
         return complementarity(x, game.solver_field(x, theta), game.lower, game.upper)
 
-    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps))
+    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps,
+                                             direction))
+
+
+def _direction(linear):
+    if linear == "dense":
+        return _dense_direction
+    if linear == "krylov":
+        return _krylov_direction
+    from ._errors import InputError
+
+    raise InputError(f"linear: expected one of {', '.join(LINEAR)}, got {linear!r}")
+
+
+def _dense_direction(residual_fn, x, phi):
+    """Newton and Levenberg-Marquardt directions from the dense Jacobian; ``(d, J^T phi, finite)``."""
+    jac = jax.jacfwd(residual_fn)(x)
+    grad = jac.T @ phi
+    mu = jnp.linalg.norm(phi)
+    lm = jac.T @ jac + mu * jnp.eye(x.shape[0])
+    # Newton and Levenberg-Marquardt directions in one batched LAPACK call (DEVELOPERS.md:
+    # independent LAPACK calls in one graph can deadlock jaxlib's CPU thread pool).
+    d_newton, d_lm = jnp.linalg.solve(jnp.stack([jac, lm]), jnp.stack([-phi, -grad])[..., None])[..., 0]
+    newton_ok = jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
+    d = jnp.where(newton_ok, d_newton, d_lm)
+    return d, grad, jnp.all(jnp.isfinite(jac)) & jnp.all(jnp.isfinite(d))
+
+
+def _krylov_direction(residual_fn, x, phi):
+    """Matrix-free directions: GMRES on JVPs for Newton, CG on the normal equations for the
+    Levenberg-Marquardt fallback; ``(d, J^T phi, finite)``."""
+    from jax.scipy.sparse.linalg import cg, gmres
+
+    _, jvp = jax.linearize(residual_fn, x)
+    _, vjp = jax.vjp(residual_fn, x)
+    grad = vjp(phi)[0]
+    norm = jnp.linalg.norm(phi)
+    # Forcing term eta_k = min(0.1, |Phi|): superlinear convergence near a regular root.
+    forcing = jnp.minimum(0.1, norm)
+    d_newton, _ = gmres(jvp, -phi, tol=forcing, atol=0.0, restart=min(KRYLOV_RESTART, x.shape[0]),
+                        maxiter=KRYLOV_RESTARTS, solve_method="batched")
+    newton_ok = (jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
+                 & (jnp.linalg.norm(jvp(d_newton) + phi) <= jnp.maximum(forcing, 0.5) * norm))
+
+    def lm_direction():
+        d_lm, _ = cg(lambda v: vjp(jvp(v))[0] + norm * v, -grad, tol=1e-6, maxiter=4 * KRYLOV_RESTART)
+        return d_lm
+
+    d = lax.cond(newton_ok, lambda: d_newton, lm_direction)
+    return d, grad, jnp.all(jnp.isfinite(grad)) & jnp.all(jnp.isfinite(d))
 
 
 def deflated_solve(game, x0, theta, roots, active, scale, *, power=2.0, shift=1.0,
@@ -197,7 +277,8 @@ def deflated_solve(game, x0, theta, roots, active, scale, *, power=2.0, shift=1.
     def residual_fn(x):
         return multiplier(x) * complementarity(x, game.solver_field(x, theta), game.lower, game.upper)
 
-    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps))
+    return _finish(game, theta, _newton_loop(residual_fn, x0, _ftol_abs(game, x0, theta, ftol), xtol, max_steps,
+                                             _dense_direction))
 
 
 def _ftol_abs(game, x0, theta, ftol):
@@ -214,8 +295,9 @@ def _finish(game, theta, out: _Loop) -> RootResult:
     return RootResult(x, out.status, out.step, res)
 
 
-def _newton_loop(residual_fn, x0, ftol_abs, xtol, max_steps) -> _Loop:
-    """The globalised Newton iteration on ``residual_fn`` from ``x0`` (a ``lax.while_loop``)."""
+def _newton_loop(residual_fn, x0, ftol_abs, xtol, max_steps, direction) -> _Loop:
+    """The globalised Newton iteration on ``residual_fn`` from ``x0`` (a ``lax.while_loop``);
+    ``direction(residual_fn, x, phi) -> (d, J^T phi, finite)`` computes each step."""
     phi0 = residual_fn(x0)
 
     def merit(phi):
@@ -223,16 +305,8 @@ def _newton_loop(residual_fn, x0, ftol_abs, xtol, max_steps) -> _Loop:
         return jnp.where(jnp.isfinite(v), v, jnp.inf)
 
     def body(s: _Loop) -> _Loop:
-        jac = jax.jacfwd(residual_fn)(s.x)
         phi = s.phi
-        grad = jac.T @ phi
-        mu = jnp.linalg.norm(phi)
-        lm = jac.T @ jac + mu * jnp.eye(x0.shape[0])
-        # Newton and Levenberg-Marquardt directions in one batched LAPACK call (DEVELOPERS.md:
-        # independent LAPACK calls in one graph can deadlock jaxlib's CPU thread pool).
-        d_newton, d_lm = jnp.linalg.solve(jnp.stack([jac, lm]), jnp.stack([-phi, -grad])[..., None])[..., 0]
-        newton_ok = jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
-        d = jnp.where(newton_ok, d_newton, d_lm)
+        d, grad, finite = direction(residual_fn, s.x, phi)
         psi = merit(phi)
         slope = grad @ d
         small_phi = jnp.max(jnp.abs(phi)) <= ftol_abs
@@ -252,7 +326,6 @@ def _newton_loop(residual_fn, x0, ftol_abs, xtol, max_steps) -> _Loop:
         t, phi_new, psi_new, k = lax.while_loop(ls_cond, ls_body, (1.0, phi1, merit(phi1), 0))
         ls_ok = (psi_new <= psi + 1e-4 * t * slope) & jnp.isfinite(psi_new)
         converged = small_phi & small_step
-        finite = jnp.all(jnp.isfinite(jac)) & jnp.all(jnp.isfinite(d))
         # A converged point takes its final (tiny) full step.
         x_new = jnp.where(converged, s.x + d, jnp.where(ls_ok, s.x + t * d, s.x))
         phi_next = jnp.where(converged, residual_fn(x_new), jnp.where(ls_ok, phi_new, phi))

@@ -19,6 +19,7 @@ import numpy as np
 
 from ._checks import check_payoffs, user_code
 from ._errors import InputError
+from ._fixed_point import fixed_point_solve
 from ._newton import deflated_solve, newton_solve
 from ._sampling import unit_sample
 from ._status import Nash, Status
@@ -116,6 +117,10 @@ class Solution:
         return [e for e in self.equilibria if e.nash is not Nash.not_nash]
 
 
+#: Ways :func:`solve` can solve each start.
+METHODS = ("newton", "krylov", "fixed_point")
+
+
 def starting_points(game, theta, count: int, seed: int) -> np.ndarray:
     """``count`` scrambled-Sobol starts in the game's search region."""
     with user_code(game, "search_box"):
@@ -165,7 +170,7 @@ def distinct(points: np.ndarray, residuals: np.ndarray, tol: float) -> list[tupl
 def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, seed: int = 0,
           ftol: float = 1e-10, xtol: float = 1e-10, max_steps: int = 100,
           dedup_tol: float = 1e-6, deviation_starts: int = 16, stability: bool = True,
-          all_equilibria: bool = False, deflation_rounds: int = 8) -> Solution:
+          all_equilibria: bool = False, deflation_rounds: int = 8, method: str = "newton") -> Solution:
     """Find and verify the equilibria of ``game`` reachable from ``starts`` starts.
 
     Parameters
@@ -196,6 +201,12 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         nothing new is the evidence offered.
     deflation_rounds : int
         Most deflation rounds (with ``all_equilibria``).
+    method : {"newton", "krylov", "fixed_point"}
+        How each start is solved: semismooth Newton with a dense Jacobian
+        (:func:`newton_solve`), matrix-free Newton-Krylov (``linear="krylov"``,
+        for large games), or the family's fixed-point map
+        (:func:`fixed_point_solve`; logit pricing). Deflation rounds always
+        use dense Newton.
 
     Returns
     -------
@@ -212,17 +223,24 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         raise InputError(f"starts: expected a positive whole number, got {starts!r}")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed: expected a non-negative whole number, got {seed!r}")
+    if method not in METHODS:
+        raise InputError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
+    if method == "fixed_point" and game.fixed_point is None:
+        raise InputError(f"method: {game.name or game.source or 'this game'} has no fixed-point map "
+                         "(the logit families have one); use newton or krylov")
     t0 = time.perf_counter()
     theta = game.theta(params)
     x0 = starting_points(game, theta, int(starts), int(seed))
     check_payoffs(game, theta, x0)
 
-    run = game.cached(
-        ("newton_batch", ftol, xtol, max_steps),
-        lambda: jax.jit(jax.vmap(
-            lambda x, th: newton_solve(game, x, th, ftol=ftol, xtol=xtol, max_steps=max_steps),
-            in_axes=(0, None))),
-    )
+    def one(x, th):
+        if method == "fixed_point":
+            return fixed_point_solve(game, x, th)
+        return newton_solve(game, x, th, ftol=ftol, xtol=xtol, max_steps=max_steps,
+                            linear="krylov" if method == "krylov" else "dense")
+
+    run = game.cached(("solve_batch", method, ftol, xtol, max_steps),
+                      lambda: jax.jit(jax.vmap(one, in_axes=(0, None))))
     with user_code(game, "payoffs"):
         roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
     ok = roots.status == Status.success.code
@@ -264,6 +282,7 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         "newton_steps_mean": float(np.mean(roots.steps)),
         "newton_steps_max": int(np.max(roots.steps)),
         "seconds": time.perf_counter() - t0,
+        "method": method,
     }
     if deflation is not None:
         stats["deflation"] = deflation

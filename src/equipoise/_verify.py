@@ -9,7 +9,9 @@ Three checks, all pure JAX (``jit`` and ``vmap`` apply):
 3. a global deviation check: each player, the others held fixed, maximises
    its own payoff over its own actions by projected gradient ascent from a
    low-discrepancy sample of its action box (bounds where finite, otherwise
-   the game's search box).
+   the game's search box). A game whose family proves a closed-form global
+   best response (``Game(best_response=...)``, e.g. logit pricing) is
+   checked with it instead: each player's best gain is then exact.
 
 Labels (:class:`Nash`): ``not_nash`` when some player's own Hessian has a
 positive eigenvalue on interior coordinates, or a profitable deviation was
@@ -130,12 +132,43 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_sta
 
     own_curv, curv_tol = jax.vmap(curvature)(jnp.arange(N))
 
+    u_star = game.payoff_vector(x, theta)
+    if game.best_response is not None:
+        devs, gains, checked = _exact_gains(game, x, theta, u_star)
+    else:
+        devs, gains, checked = _searched_gains(game, x, theta, u_star, unit_starts, starts, seed, ascent_steps)
+    thresholds = gain_tol * (1.0 + jnp.abs(u_star))
+    found = jnp.any(gains > thresholds)
+    soc_bad = jnp.any(own_curv > curv_tol)
+    soc_strict = jnp.all(own_curv < -curv_tol)
+    label = jnp.where(
+        soc_bad | (found & ~soc_strict),
+        Nash.not_nash.code,
+        jnp.where(found | ~jnp.all(checked), Nash.local.code, Nash.global_.code),
+    )
+    return Verification(label, residual, own_curv, gains, devs, interior, J)
+
+
+def _exact_gains(game, x, theta, u_star):
+    """Each player's gain from its closed-form best response; ``(deviations, gains, checked)``."""
+    reply = jnp.asarray(game.best_response(x, theta), dtype=float)
+    owner = jnp.asarray(game.owner)
+    devs = jnp.where(owner[None, :] == jnp.arange(len(game.players))[:, None], reply[None, :], x[None, :])
+    u = jax.vmap(lambda y: game.payoff_vector(y, theta))(devs)
+    gains = jnp.diagonal(u) - u_star
+    checked = jnp.isfinite(gains)
+    return devs, jnp.where(checked, gains, -jnp.inf), checked
+
+
+def _searched_gains(game, x, theta, u_star, unit_starts, starts, seed, ascent_steps):
+    """Each player's best gain found by projected gradient ascent; ``(deviations, gains, checked)``."""
+    n, N = game.n, len(game.players)
+    owner = jnp.asarray(game.owner)
     lo, hi = game.region(theta)
     if unit_starts is None:
         unit_starts = unit_sample(starts, n, seed)
     sample = lo + (hi - lo) * jnp.asarray(unit_starts)
     starts_all = jnp.concatenate([x[None, :], sample], axis=0)  # (S, n)
-    u_star = game.payoff_vector(x, theta)
 
     def payoff_i(y, i):
         return game.payoff_vector(y, theta)[i]
@@ -176,14 +209,4 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_sta
         best = jnp.argmax(us)
         return ys[best], us[best] - u_star[i], jnp.any(jnp.isfinite(us))
 
-    devs, gains, checked = jax.vmap(search)(jnp.arange(N))
-    thresholds = gain_tol * (1.0 + jnp.abs(u_star))
-    found = jnp.any(gains > thresholds)
-    soc_bad = jnp.any(own_curv > curv_tol)
-    soc_strict = jnp.all(own_curv < -curv_tol)
-    label = jnp.where(
-        soc_bad | (found & ~soc_strict),
-        Nash.not_nash.code,
-        jnp.where(found | ~jnp.all(checked), Nash.local.code, Nash.global_.code),
-    )
-    return Verification(label, residual, own_curv, gains, devs, interior, J)
+    return jax.vmap(search)(jnp.arange(N))
