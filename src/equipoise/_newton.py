@@ -92,7 +92,13 @@ def _norm2_jvp(primals, tangents):
 
 
 def _fb(a, b):
-    return a + b - _norm2(a, b)
+    # a + b - sqrt(a^2 + b^2) cancels catastrophically when a and b are both large and
+    # positive (a runaway iterate would then look like a root); there the equal form
+    # 2ab / (a + b + sqrt(a^2 + b^2)) is used.
+    r = _norm2(a, b)
+    s = a + b
+    positive = s > 0
+    return jnp.where(positive, 2.0 * a * b / jnp.where(positive, s + r, 1.0), s - r)
 
 
 def complementarity(x, F, lower, upper):
