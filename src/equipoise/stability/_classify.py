@@ -31,6 +31,11 @@ OBSTRUCTION_TOL = 1e-10
 
 #: Up to this many blocks, fast/slow corner speeds are tried before the barrier method.
 CHEAP_CORNER_BLOCKS = 4
+#: Above this many free actions only the cheap evidence runs (eigenvalues, closed-form Lyapunov
+#: candidates): the barrier method's systems grow like n^4 for per-coordinate weights and the
+#: speed-ratio analysis solves an n^2 x n^2 eigenproblem. Larger games get ``undecided`` where
+#: the cheap evidence decides nothing.
+MAX_SEARCH_SIZE = 32
 
 ROBUST, FRAGILE, UNDECIDED = "robust", "fragile", "undecided"
 
@@ -173,6 +178,11 @@ def _certify(J, blocks, coord_speeds, effort, ev: Evidence) -> SpeedVerdict:
             return _fragile(J, np.asarray(speeds), coord_speeds, "fast/slow corner speeds", effort)
         return None
 
+    if J.shape[0] > MAX_SEARCH_SIZE:
+        v = _lyapunov(J, blocks, "lyapunov_candidates", effort, ev)
+        return v or SpeedVerdict(UNDECIDED, f"no closed-form Lyapunov candidate verified; the barrier method "
+                                            f"and the speed searches run up to {MAX_SEARCH_SIZE} free actions "
+                                            f"(here {J.shape[0]})", None, effort)
     # Corner patterns grow as 2^blocks: cheaper than the barrier method only for few blocks.
     steps = [lambda: _lyapunov(J, blocks, "lyapunov_candidates", effort, ev),
              lambda: _lyapunov(J, blocks, "lyapunov", effort, ev)]
@@ -236,13 +246,13 @@ def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: Sp
     if equal_abscissa > FRAGILE_TOL:
         v = _fragile(J, np.ones(len(blocks)), expand, "unstable at equal speeds")
         if v:
-            ratios = stable_ratio_intervals(J, blocks[0]) if len(blocks) == 2 else None
+            ratios = stable_ratio_intervals(J, blocks[0]) if _ratio_analysis(blocks) else None
             return SpeedVerdict(v.verdict, v.method, v.certificate, stable_ratios=ratios)
     if len(blocks) == 1:
         if equal_abscissa < -FRAGILE_TOL:
             return SpeedVerdict(ROBUST, "one player: equal speeds", {"criterion": "J Hurwitz"})
         return SpeedVerdict(UNDECIDED, "one player: borderline at equal speeds", None)
-    if len(blocks) == 2:
+    if _ratio_analysis(blocks):
         ratios = stable_ratio_intervals(J, blocks[0])
         if ratios == [[None, None]]:
             return SpeedVerdict(ROBUST, "exact speed-ratio analysis (Kronecker-sum roots)",
@@ -257,6 +267,11 @@ def _player_verdict(J: np.ndarray, blocks, equal_abscissa: float, coordinate: Sp
         return SpeedVerdict(ROBUST, "implied by per-coordinate robustness (" + coordinate.method + ")",
                             coordinate.certificate)
     return _certify(J, blocks, expand, {}, ev)
+
+
+def _ratio_analysis(blocks) -> bool:
+    """Two players and few enough actions for the Kronecker-sum eigenproblem (size n^2)."""
+    return len(blocks) == 2 and sum(blocks) <= MAX_SEARCH_SIZE
 
 
 def _unstable_probes(ratios) -> list[float]:
