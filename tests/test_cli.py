@@ -248,3 +248,34 @@ def test_console_script_demo(_compile_cache):
     assert proc.returncode == 0, proc.stderr
     assert "Traceback" not in proc.stderr
     _assert_demo_table(proc.stdout)
+
+
+# ---------------------------------------------------------------- solver methods
+
+LOGIT = MODELS_DIR / "logit_valemont_bakeries.py"
+
+
+@pytest.mark.parametrize("method", ["krylov", "fixed_point"])
+def test_solve_method_gives_the_newton_equilibrium(method):
+    """--method krylov / fixed_point reach the equilibrium dense Newton finds (the logit game's
+    equilibrium is unique: Konovalov & Sandor 2010, "On price equilibrium with multi-product
+    firms", Economic Theory 44; from memory)."""
+    base = _solve_json(LOGIT)
+    other = _solve_json(LOGIT, "--method", method, "--starts", "8")
+    assert len(other["equilibria"]) == len(base["equilibria"]) == 1
+    assert other["equilibria"][0]["nash"] == "global"
+    assert _stacked(other["equilibria"][0]) == pytest.approx(_stacked(base["equilibria"][0]), abs=1e-9)
+
+
+def test_solve_method_refused_for_a_game_without_a_map():
+    rc, out, err = _run(["solve", str(FERRIES), "--method", "fixed_point"])
+    assert rc == 2 and out == ""
+    assert err.strip().endswith("has no fixed-point map (the logit families have one); use newton or krylov")
+    assert "Traceback" not in err
+
+
+def test_cli_methods_are_the_solver_methods():
+    from equipoise import cli
+    from equipoise._solve import METHODS
+
+    assert cli.METHODS == METHODS

@@ -226,7 +226,7 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     if method not in METHODS:
         raise InputError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
     if method == "fixed_point" and game.fixed_point is None:
-        raise InputError(f"method: {game.name or game.source or 'this game'} has no fixed-point map "
+        raise InputError(f"method: {game.source or game.name or 'this game'} has no fixed-point map "
                          "(the logit families have one); use newton or krylov")
     t0 = time.perf_counter()
     theta = game.theta(params)

@@ -52,7 +52,7 @@ def _run_solve(game, model: str, args) -> int:
     from ._solve import solve
 
     params = _parse_sets(args.set or [])
-    solution = solve(game, params, starts=args.starts, seed=args.seed, all_equilibria=args.all)
+    solution = solve(game, params, starts=args.starts, seed=args.seed, all_equilibria=args.all, method=args.method)
     if args.json:
         json.dump(_report.solution_dict(solution, game, model), sys.stdout, indent=2)
         sys.stdout.write("\n")
@@ -317,12 +317,23 @@ def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
 
+#: ``_solve.METHODS``, spelled out so that building the parser imports no solver code.
+METHODS = ("newton", "krylov", "fixed_point")
+
+
+def _method_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--method", choices=METHODS, default="newton",
+                   help="newton (dense Jacobian, default), krylov (matrix-free, for large games) or "
+                        "fixed_point (the logit families' markup equation)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="equipoise", description="Find and verify Nash equilibria of continuous-action games.")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
     p = sub.add_parser("solve", help="find, verify and report the equilibria of a model file")
     p.add_argument("model", help="a Python file that defines `game`")
     _solve_options(p)
+    _method_option(p)
     p.set_defaults(func=_cmd_solve)
     p = sub.add_parser("check", help="stability labels of a Jacobian given in a JSON file")
     p.add_argument("file", help='JSON: {"jacobian": [[..]], "blocks": [m_1, ...]} (blocks optional)')
@@ -421,6 +432,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=_cmd_simulate)
     p = sub.add_parser("demo", help="solve the built-in demonstration scenario")
     _solve_options(p)
+    _method_option(p)
     p.set_defaults(func=_cmd_demo)
     return parser
 
