@@ -301,12 +301,15 @@ def main():
     ap.add_argument("--workers", type=int, help="worker processes for --engine processes or dask")
     ap.add_argument("--profile", action="store_true")
     ap.add_argument("--profile-batches", type=int, default=8)
+    ap.add_argument("--quick", action="store_true", help="a smoke run: small sizes, no warm run")
     ap.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--model", help=argparse.SUPPRESS)
     ap.add_argument("--store", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
         return child(args)
+    if args.quick:
+        args.points, args.ref_points, args.dev_ref_points, args.no_warm = 2048, 200, 20, True
 
     folder = tempfile.mkdtemp(prefix="bench-sweep-")
     try:
@@ -317,6 +320,9 @@ def main():
 
 def measure(args, folder):
     """Both sides in ``folder`` (model file, stores, compilation cache), then the printed figures."""
+    import _common as C
+
+    note = C.machine_note()
     model = os.path.join(folder, "orrin_yoghurts.py")
     with open(model, "w", encoding="utf-8") as fh:
         fh.write(MODEL)
@@ -384,6 +390,25 @@ def measure(args, folder):
           + ", ".join(f"equipoise {label} {t_dev / wall:.2f}x" for label, wall in runs))
     print(f"agreement on the {int(both.sum())} subsample points solved by both: max |price diff| {diff:.1e}; "
           f"equal-speed verdict agrees on {label_agree:.2%}")
+    rows = []
+    for label, wall in runs:
+        rows.append([f"{args.points:,} points, batch {args.batch}, starts {args.starts}, deviation_starts "
+                     f"{args.deviation_starts}, labels \"equal\", {label}",
+                     f"{wall:.1f} s ({args.points / wall:,.0f} points/s)",
+                     f"root + Jacobian + eigenvalues: {len(pick) / t_ref_sub:,.0f} points/s, {t_ref:.1f} s extrapolated "
+                     f"({t_ref / wall:.2f}x); with a scipy deviation search: {len(sub) / t_dev_sub:,.0f} points/s "
+                     f"({t_dev / wall:.1f}x)",
+                     C.goal(t_ref / wall >= 10, ">= 10x end to end")])
+    print(C.markdown_section(
+        "sweep", "Sweeps end to end (`python benchmarks/bench_sweep.py`)",
+        [f"A scrambled Sobol sample of {args.points:,} cost vectors for the invented 9-price logit game; equipoise: one "
+         f"`sweep(spec, store)` call in a fresh Python process (start-up, imports, compilation, verification with the "
+         f"global deviation search, equal-speed label, SQLite store), timed whole. Reference: a loop of scipy "
+         f"`root(method=\"hybr\")` + forward-difference Jacobian + `eigvals` on {len(pick):,} evenly spaced points "
+         f"(faster of two passes), **extrapolated**; a secondary reference adds a scipy L-BFGS-B deviation search per "
+         f"firm ({len(sub)} points). Outcome: status {res['counts']}; agreement on the {int(both.sum())} reference "
+         f"points: max abs price difference {diff:.1e}, equal-speed verdicts agree on {label_agree:.2%}. {note}."],
+        ["figure", "equipoise", "in-run reference", "goal"], rows))
     if args.profile:
         per, first = profile(model, args, args.profile_batches)
         print_profile(per, first, args.batch, args.deviation_starts)
