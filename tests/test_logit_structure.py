@@ -84,7 +84,7 @@ def test_fixed_point_refused_without_a_map():
         equipoise.fixed_point_solve(game, jnp.ones(2))
     with pytest.raises(InputError, match="method: .* has no fixed-point map"):
         equipoise.solve(game, method="fixed_point")
-    with pytest.raises(InputError, match="method: expected one of newton, krylov, fixed_point"):
+    with pytest.raises(InputError, match="method: expected one of auto, newton, krylov, fixed_point"):
         equipoise.solve(game, method="bisection")
 
 
@@ -145,3 +145,26 @@ def test_solve_methods_agree():
         assert s.stats["method"] == m
     np.testing.assert_allclose(xs["krylov"], xs["newton"], atol=1e-10)
     np.testing.assert_allclose(xs["fixed_point"], xs["newton"], atol=1e-10)
+
+
+def test_auto_method_choice():
+    from equipoise._solve import KRYLOV_FROM, resolve_method
+
+    assert resolve_method(logit_multi(), "auto") == "fixed_point"
+    assert resolve_method(equipoise.cournot(a=100.0, b=2.0, costs=[10.0, 20.0]), "auto") == "newton"
+    big = equipoise.cournot(a=100.0, b=2.0, costs=[10.0] * KRYLOV_FROM)
+    assert resolve_method(big, "auto") == "krylov"
+    assert resolve_method(big, "newton") == "newton"
+
+
+def test_unsettled_fixed_point_starts_fall_back_to_newton():
+    # u_i = -(x_i - 1)^2 / 2: the only equilibrium is x = (1, 1). The map T(x) = 2 - x has the
+    # same fixed point but oscillates from every other start, so every start needs Newton.
+    game = equipoise.Game({"a": 1, "b": 1},
+                          lambda x, th: {"a": -0.5 * (x["a"][0] - 1.0) ** 2, "b": -0.5 * (x["b"][0] - 1.0) ** 2},
+                          fixed_point=lambda x, th: 2.0 - x)
+    sol = equipoise.solve(game, method="fixed_point", starts=4, stability=False)
+    assert sol.stats["method"] == "fixed_point"
+    assert sol.stats["newton_fallback_starts"] == 4
+    (eq,) = sol.equilibria
+    np.testing.assert_allclose(eq.x, [1.0, 1.0], atol=1e-12)

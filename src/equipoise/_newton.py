@@ -21,8 +21,8 @@ Two linear algebra paths compute the step (``linear=``):
 
 * ``"dense"``: the Jacobian of :math:`\Phi` by forward mode (``n`` JVPs,
   which for a square system costs the same as reverse mode and keeps the
-  memory of one pass) and one batched LU solve of the Newton and
-  Levenberg--Marquardt systems; about :math:`n^3/3` flops a step.
+  memory of one pass) and an LU solve; about :math:`2n^3/3` flops a step
+  (the Levenberg--Marquardt system is formed only when the Newton step fails).
 * ``"krylov"``: matrix-free inexact Newton. The Newton system is solved by
   restarted GMRES on Jacobian-vector products (``jax.jvp``), never forming
   the Jacobian; the fallback solves the Levenberg--Marquardt normal equations
@@ -201,13 +201,18 @@ def _dense_direction(residual_fn, x, phi):
     """Newton and Levenberg-Marquardt directions from the dense Jacobian; ``(d, J^T phi, finite)``."""
     jac = jax.jacfwd(residual_fn)(x)
     grad = jac.T @ phi
-    mu = jnp.linalg.norm(phi)
-    lm = jac.T @ jac + mu * jnp.eye(x.shape[0])
-    # Newton and Levenberg-Marquardt directions in one batched LAPACK call (DEVELOPERS.md:
-    # independent LAPACK calls in one graph can deadlock jaxlib's CPU thread pool).
-    d_newton, d_lm = jnp.linalg.solve(jnp.stack([jac, lm]), jnp.stack([-phi, -grad])[..., None])[..., 0]
+    d_newton = jnp.linalg.solve(jac, -phi)
     newton_ok = jnp.all(jnp.isfinite(d_newton)) & (grad @ d_newton < 0)
-    d = jnp.where(newton_ok, d_newton, d_lm)
+
+    def lm_direction():
+        # The Levenberg-Marquardt system only when the Newton step fails (it costs J^T J and a
+        # second factorisation). Its damping reads d_newton, so the two LAPACK calls stay in
+        # sequence even where vmap turns this cond into a select (DEVELOPERS.md: independent
+        # LAPACK calls in one graph can deadlock jaxlib's CPU thread pool).
+        mu = jnp.linalg.norm(phi) + 0.0 * jnp.sum(jnp.where(jnp.isfinite(d_newton), d_newton, 0.0))
+        return jnp.linalg.solve(jac.T @ jac + mu * jnp.eye(x.shape[0]), -grad)
+
+    d = lax.cond(newton_ok, lambda: d_newton, lm_direction)
     return d, grad, jnp.all(jnp.isfinite(jac)) & jnp.all(jnp.isfinite(d))
 
 

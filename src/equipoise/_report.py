@@ -132,6 +132,18 @@ def _param_text(v) -> str:
     return np.array2string(arr, separator=", ", formatter={"float_kind": _num})
 
 
+_METHOD_NAMES = {"newton": "Newton", "krylov": "Newton-Krylov", "fixed_point": "the markup fixed point"}
+
+
+def _method_text(stats) -> str:
+    if "method" not in stats:
+        return ""
+    text = f"; by {_METHOD_NAMES.get(stats['method'], stats['method'])}"
+    if stats.get("newton_fallback_starts"):
+        text += f", Newton from {stats['newton_fallback_starts']} unsettled start(s)"
+    return text
+
+
 def solution_table(solution, game, model: str) -> str:
     """A plain-text report, one block per equilibrium."""
     st = solution.stats
@@ -139,7 +151,7 @@ def solution_table(solution, game, model: str) -> str:
         f"model: {model}   ({len(game.players)} players, {game.n} actions)",
         "parameters: " + (", ".join(f"{k} = {_param_text(v)}" for k, v in solution.params.items()) or "none"),
         f"{len(solution.equilibria)} distinct first-order point(s) from {st['starts']} starts "
-        f"({st['converged']} converged) in {st['seconds']:.1f} s",
+        f"({st['converged']} converged{_method_text(st)}) in {st['seconds']:.1f} s",
     ]
     if "deflation" in st:
         d = st["deflation"]

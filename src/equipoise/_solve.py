@@ -86,7 +86,8 @@ class Solution:
     params : dict
         The parameter values used.
     stats : dict
-        Effort: ``starts``, ``converged``, counts per status, Newton steps,
+        Effort: ``starts``, ``converged``, counts per status (``outcomes``),
+        steps of the solver (``steps_mean``, ``steps_max``), ``method``,
         ``seconds``.
     rosen : dict or None
         For a game whose Jacobian is constant on the sampled starts
@@ -118,7 +119,39 @@ class Solution:
 
 
 #: Ways :func:`solve` can solve each start.
-METHODS = ("newton", "krylov", "fixed_point")
+METHODS = ("auto", "newton", "krylov", "fixed_point")
+
+#: With ``method="auto"``, games with at least this many actions take Newton-Krylov steps (on
+#: logit games of 50 and 200 prices the crossover of dense and Krylov steps lies between).
+KRYLOV_FROM = 100
+
+
+def resolve_method(game, method: str) -> str:
+    """The solver ``method`` names for ``game``: ``auto`` becomes the family's fixed-point map if
+    it has one, else Newton-Krylov from ``KRYLOV_FROM`` actions, else dense Newton."""
+    if method not in METHODS:
+        raise InputError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
+    if method == "fixed_point" and game.fixed_point is None:
+        raise InputError(f"method: {game.source or game.name or 'this game'} has no fixed-point map "
+                         "(the logit families have one); use newton or krylov")
+    if method == "auto":
+        return "fixed_point" if game.fixed_point is not None else _newton_kind(game)
+    return method
+
+
+def _newton_kind(game) -> str:
+    return "krylov" if game.n >= KRYLOV_FROM else "newton"
+
+
+def _batch_solver(game, method: str, newton: dict):
+    """The compiled solver of a stack of starts (one compilation per game, method and options)."""
+    def one(x, th):
+        if method == "fixed_point":
+            return fixed_point_solve(game, x, th)
+        return newton_solve(game, x, th, linear="krylov" if method == "krylov" else "dense", **newton)
+
+    return game.cached(("solve_batch", method, tuple(sorted(newton.items()))),
+                       lambda: jax.jit(jax.vmap(one, in_axes=(0, None))))
 
 
 def starting_points(game, theta, count: int, seed: int) -> np.ndarray:
@@ -170,7 +203,7 @@ def distinct(points: np.ndarray, residuals: np.ndarray, tol: float) -> list[tupl
 def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, seed: int = 0,
           ftol: float = 1e-10, xtol: float = 1e-10, max_steps: int = 100,
           dedup_tol: float = 1e-6, deviation_starts: int = 16, stability: bool = True,
-          all_equilibria: bool = False, deflation_rounds: int = 8, method: str = "newton") -> Solution:
+          all_equilibria: bool = False, deflation_rounds: int = 8, method: str = "auto") -> Solution:
     """Find and verify the equilibria of ``game`` reachable from ``starts`` starts.
 
     Parameters
@@ -201,12 +234,17 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         nothing new is the evidence offered.
     deflation_rounds : int
         Most deflation rounds (with ``all_equilibria``).
-    method : {"newton", "krylov", "fixed_point"}
+    method : {"auto", "newton", "krylov", "fixed_point"}
         How each start is solved: semismooth Newton with a dense Jacobian
         (:func:`newton_solve`), matrix-free Newton-Krylov (``linear="krylov"``,
         for large games), or the family's fixed-point map
-        (:func:`fixed_point_solve`; logit pricing). Deflation rounds always
-        use dense Newton.
+        (:func:`fixed_point_solve`; logit pricing), with Newton from the
+        starts it leaves unsettled (counted in
+        ``stats["newton_fallback_starts"]``). ``auto`` (default) picks the
+        fixed-point map where the game has one, else Krylov from
+        ``KRYLOV_FROM`` actions, else dense Newton (:func:`resolve_method`);
+        ``stats["method"]`` says which ran. Deflation rounds always use dense
+        Newton.
 
     Returns
     -------
@@ -223,26 +261,25 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         raise InputError(f"starts: expected a positive whole number, got {starts!r}")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed: expected a non-negative whole number, got {seed!r}")
-    if method not in METHODS:
-        raise InputError(f"method: expected one of {', '.join(METHODS)}, got {method!r}")
-    if method == "fixed_point" and game.fixed_point is None:
-        raise InputError(f"method: {game.source or game.name or 'this game'} has no fixed-point map "
-                         "(the logit families have one); use newton or krylov")
+    method = resolve_method(game, method)
     t0 = time.perf_counter()
     theta = game.theta(params)
     x0 = starting_points(game, theta, int(starts), int(seed))
     check_payoffs(game, theta, x0)
 
-    def one(x, th):
-        if method == "fixed_point":
-            return fixed_point_solve(game, x, th)
-        return newton_solve(game, x, th, ftol=ftol, xtol=xtol, max_steps=max_steps,
-                            linear="krylov" if method == "krylov" else "dense")
-
-    run = game.cached(("solve_batch", method, ftol, xtol, max_steps),
-                      lambda: jax.jit(jax.vmap(one, in_axes=(0, None))))
+    newton = dict(ftol=ftol, xtol=xtol, max_steps=max_steps)
     with user_code(game, "payoffs"):
-        roots = jax.tree.map(np.asarray, run(jnp.asarray(x0), theta))
+        roots = jax.tree.map(np.asarray, _batch_solver(game, method, newton)(jnp.asarray(x0), theta))
+        fallback = 0
+        if method == "fixed_point":
+            # Starts the iteration did not settle are solved again by Newton.
+            missed = roots.status != Status.success.code
+            fallback = int(missed.sum())
+            if fallback:
+                again = jax.tree.map(np.asarray, _batch_solver(game, _newton_kind(game), newton)(
+                    jnp.asarray(x0), theta))
+                roots = jax.tree.map(lambda a, b: np.where(missed.reshape((-1,) + (1,) * (a.ndim - 1)), b, a),
+                                     roots, again)
     ok = roots.status == Status.success.code
     points, residuals = roots.x[ok], roots.residual[ok]
     deflation = None
@@ -279,11 +316,13 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
         "starts": int(starts),
         "converged": int(ok.sum()),
         "outcomes": counts,
-        "newton_steps_mean": float(np.mean(roots.steps)),
-        "newton_steps_max": int(np.max(roots.steps)),
+        "steps_mean": float(np.mean(roots.steps)),
+        "steps_max": int(np.max(roots.steps)),
         "seconds": time.perf_counter() - t0,
         "method": method,
     }
+    if method == "fixed_point":
+        stats["newton_fallback_starts"] = fallback
     if deflation is not None:
         stats["deflation"] = deflation
     rosen = _rosen(game, theta, x0) if stability else None

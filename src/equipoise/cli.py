@@ -318,13 +318,14 @@ def _solve_options(p: argparse.ArgumentParser, sets: bool = True) -> None:
 
 
 #: ``_solve.METHODS``, spelled out so that building the parser imports no solver code.
-METHODS = ("newton", "krylov", "fixed_point")
+METHODS = ("auto", "newton", "krylov", "fixed_point")
 
 
 def _method_option(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--method", choices=METHODS, default="newton",
-                   help="newton (dense Jacobian, default), krylov (matrix-free, for large games) or "
-                        "fixed_point (the logit families' markup equation)")
+    p.add_argument("--method", choices=METHODS, default="auto",
+                   help="auto (default: the model's fixed-point map if it has one, else krylov from 100 "
+                        "actions, else newton), newton (dense Jacobian), krylov (matrix-free, for large "
+                        "games) or fixed_point (the logit families' markup equation)")
 
 
 def build_parser() -> argparse.ArgumentParser:
