@@ -9,6 +9,7 @@ from scipy.optimize import minimize_scalar
 
 import equipoise
 from equipoise import Game, Nash, Status
+from equipoise._verify import verify
 
 # --------------------------------------------------------------------------
 # (i) A game whose first-order points are global, local and not Nash.
@@ -210,3 +211,25 @@ def test_unique_below_threshold(request, n, fixture):
     np.testing.assert_allclose(enumerate_equilibria(np.ones((n, n)) - np.eye(n), 0.5), expected,
                                rtol=0, atol=1e-12)
     assert_same_set(sol, expected)
+
+
+# Corners without strict complementarity (the marginal payoff vanishes at the bound): the
+# first-order conditions hold there, and only second-order information along the bound decides
+# (second-order conditions for bound-constrained maxima, common practice).
+
+
+def test_degenerate_corner_that_is_no_local_maximum_is_not_nash():
+    # u = x^3 on [0, 1]: u'(0) = 0, u''(0) = 0, and every x > 0 pays more.
+    game = equipoise.Game({"a": 1}, lambda x, th: {"a": x["a"][0] ** 3}, lower={"a": 0.0}, upper={"a": 1.0})
+    v = verify(game, jnp.array([0.0]))
+    assert Nash.from_code(int(v.label)) is Nash.not_nash
+    assert float(v.gains[0]) == pytest.approx(1.0, abs=1e-9)
+
+
+def test_degenerate_corner_that_is_a_strict_local_maximum_is_local():
+    # u = x^2 (x - 2) on [0, 3]: u'(0) = 0, u''(0) = -4 < 0, but u(3) = 9 > u(0) = 0.
+    game = equipoise.Game({"a": 1}, lambda x, th: {"a": x["a"][0] ** 2 * (x["a"][0] - 2.0)},
+                          lower={"a": 0.0}, upper={"a": 3.0})
+    v = verify(game, jnp.array([0.0]))
+    assert Nash.from_code(int(v.label)) is Nash.local
+    assert float(v.gains[0]) == pytest.approx(9.0, abs=1e-9)

@@ -15,9 +15,10 @@ Three checks, all pure JAX (``jit`` and ``vmap`` apply):
 
 Labels (:class:`Nash`): ``not_nash`` when some player's own Hessian has a
 positive eigenvalue on interior coordinates, or a profitable deviation was
-found and the second-order condition does not hold strictly; ``local`` when
-the second-order condition holds strictly but a profitable deviation was
-found (or the deviation search met only non-finite payoffs); ``global``
+found and the second-order condition does not hold strictly (negative
+definite on the interior coordinates and on those held at a bound with a
+zero marginal payoff); ``local`` when that strict condition holds but a
+profitable deviation was found (or the deviation search met only non-finite payoffs); ``global``
 otherwise. A deviation is profitable when it gains more than
 ``gain_tol * (1 + |u_i(x)|)``.
 """
@@ -114,21 +115,12 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_sta
     interior = (lo_gap > bound_tol * (1 + jnp.abs(jnp.where(np.isfinite(lower), lower, 0.0)))) & (
         hi_gap > bound_tol * (1 + jnp.abs(jnp.where(np.isfinite(upper), upper, 0.0))))
 
-    # Each player's own block, padded to the largest block: one batched eigenvalue call of
-    # N blocks of size max m_i (not N calls of size n).
-    H = 0.5 * (J + J.T)
-    width = max(game.sizes)
-    slots = np.arange(width)
-    idx = np.array([o + np.minimum(slots, m - 1) for o, m in zip(game.offsets, game.sizes)])  # (N, width)
-    used = np.array([slots < m for m in game.sizes])
-    keep = jnp.asarray(used) & interior[idx]  # (N, width)
-    blocks = jnp.where(keep[:, :, None] & keep[:, None, :], H[idx[:, :, None], idx[:, None, :]], 0.0)
-    size = jnp.max(jnp.abs(blocks), axis=(1, 2))
-    shift = 2.0 * size + 1.0
-    eig = jnp.linalg.eigvalsh(blocks - jax.vmap(jnp.diag)(jnp.where(keep, 0.0, shift[:, None])))
-    own_curv = jnp.where(jnp.any(keep, axis=1), eig[:, -1], -jnp.inf)
-    curv_tol = curvature_tol * (1.0 + size)
-
+    # Coordinates held at a bound with a vanishing marginal payoff (no strict complementarity):
+    # first-order information says nothing there, so strictness of the second-order condition
+    # must also hold along them. A positive eigenvalue proves non-optimality only on interior
+    # coordinates (a direction into the box cannot always be chosen along several bounds).
+    degenerate = ~interior & (jnp.abs(F) <= curvature_tol * (1.0 + jnp.max(jnp.abs(F))))
+    own_curv, curv_tol = _own_curvature(game, J, jnp.stack([interior, interior | degenerate]), curvature_tol)
     u_star = game.payoff_vector(x, theta)
     if game.best_response is not None:
         devs, gains, checked = _exact_gains(game, x, theta, u_star)
@@ -136,14 +128,36 @@ def verify(game, x, theta=None, *, starts=16, ascent_steps=200, seed=0, unit_sta
         devs, gains, checked = _searched_gains(game, x, theta, u_star, unit_starts, starts, seed, ascent_steps)
     thresholds = gain_tol * (1.0 + jnp.abs(u_star))
     found = jnp.any(gains > thresholds)
-    soc_bad = jnp.any(own_curv > curv_tol)
-    soc_strict = jnp.all(own_curv < -curv_tol)
+    soc_bad = jnp.any(own_curv[0] > curv_tol[0])
+    soc_strict = jnp.all(own_curv[1] < -curv_tol[1])
     label = jnp.where(
         soc_bad | (found & ~soc_strict),
         Nash.not_nash.code,
         jnp.where(found | ~jnp.all(checked), Nash.local.code, Nash.global_.code),
     )
-    return Verification(label, residual, own_curv, gains, devs, interior, J)
+    return Verification(label, residual, own_curv[0], gains, devs, interior, J)
+
+
+def _own_curvature(game, J, masks, curvature_tol):
+    """Largest eigenvalue of each player's own (symmetrised) Hessian on the coordinates of each
+    mask, ``-inf`` where a player has none, and its zero tolerance; arrays ``(len(masks), N)``.
+
+    Each player's block is padded to the largest block, so one batched eigenvalue call of
+    ``len(masks) * N`` blocks of size ``max m_i`` serves (not ``N`` calls of size ``n``).
+    """
+    H = 0.5 * (J + J.T)
+    width = max(game.sizes)
+    slots = np.arange(width)
+    idx = np.array([o + np.minimum(slots, m - 1) for o, m in zip(game.offsets, game.sizes)])  # (N, width)
+    used = np.array([slots < m for m in game.sizes])
+    keep = jnp.asarray(used)[None] & masks[:, idx]  # (K, N, width)
+    own = H[idx[:, :, None], idx[:, None, :]]  # (N, width, width)
+    blocks = jnp.where(keep[..., :, None] & keep[..., None, :], own[None], 0.0)
+    size = jnp.max(jnp.abs(blocks), axis=(2, 3))
+    shift = 2.0 * size + 1.0
+    pad = jnp.where(keep, 0.0, shift[..., None])
+    eig = jnp.linalg.eigvalsh(blocks - pad[..., :, None] * jnp.eye(width))
+    return jnp.where(jnp.any(keep, axis=2), eig[..., -1], -jnp.inf), curvature_tol * (1.0 + size)
 
 
 def _exact_gains(game, x, theta, u_star):
