@@ -8,22 +8,45 @@ import jax as _jax
 
 _jax.config.update("jax_enable_x64", True)
 
-from ._continuation import Branch, BranchPoint, Event, trace, trace_between  # noqa: E402
 from ._errors import InputError  # noqa: E402
 from ._game import Game  # noqa: E402
-from ._homotopy import homotopy  # noqa: E402
-from ._loader import load_game  # noqa: E402
-from ._newton import RootResult, newton_solve  # noqa: E402
-from ._fixed_point import fixed_point_solve  # noqa: E402
-from ._solve import Equilibrium, Solution, solve  # noqa: E402
 from ._status import Nash, Outcome, PointStatus, Status  # noqa: E402
-from ._verify import Verification, verify  # noqa: E402
-from ._counterfactual import Counterfactual, counterfactual  # noqa: E402
-from .sweeps import Axis, SweepResult, SweepSpec, sweep  # noqa: E402
-from .dynamics import Basins, Simulation, basins, simulate  # noqa: E402
-from .families import (  # noqa: E402
-    allocation_efficiency, cournot, linear_bertrand, logit_bertrand, logit_products, merged_ownership,
-    minmax_quadratic, network_game, ownership_matrix, proportional_allocation, public_good, tullock)
+
+# The other public names are imported on first use: a command that solves one
+# model should not pay for the sweep, dynamics and continuation machinery (and
+# their imports) at start-up.
+_LAZY = {
+    "Branch": "._continuation", "BranchPoint": "._continuation", "Event": "._continuation",
+    "trace": "._continuation", "trace_between": "._continuation",
+    "homotopy": "._homotopy",
+    "load_game": "._loader",
+    "RootResult": "._newton", "newton_solve": "._newton",
+    "fixed_point_solve": "._fixed_point",
+    "Equilibrium": "._solve", "Solution": "._solve", "solve": "._solve",
+    "Verification": "._verify", "verify": "._verify",
+    "Counterfactual": "._counterfactual", "counterfactual": "._counterfactual",
+    "Axis": ".sweeps", "SweepResult": ".sweeps", "SweepSpec": ".sweeps", "sweep": ".sweeps",
+    "Basins": ".dynamics", "Simulation": ".dynamics", "basins": ".dynamics", "simulate": ".dynamics",
+    **dict.fromkeys(("allocation_efficiency", "cournot", "linear_bertrand", "logit_bertrand", "logit_products",
+                     "merged_ownership", "minmax_quadratic", "network_game", "ownership_matrix",
+                     "proportional_allocation", "public_good", "tullock"), ".families"),
+}
+
+
+def __getattr__(name):
+    module = _LAZY.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(module, __name__), name)
+    globals()[name] = value  # later look-ups skip this function
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))
+
 
 __version__ = "0.1.0"
 

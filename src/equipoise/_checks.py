@@ -93,32 +93,29 @@ def _check_structure(game, out, what: str, sizes) -> None:
     for player, shape in zip(game.players, sizes):
         value = out[player]
         want = "a scalar payoff" if shape == () else f"an array of {shape[0]} numbers"
-        try:
-            numeric = np.issubdtype(np.asarray(value).dtype, np.number)
+        try:  # jnp, not np: the values are traced (see check_payoffs)
+            arr = jax.numpy.asarray(value)
+            numeric = np.issubdtype(arr.dtype, np.number)
         except Exception:
             numeric = False
         if not numeric:
             raise InputError(f"{where}{what}[{player!r}] is a {type(value).__name__} ({value!r:.40}); expected {want}")
-        if np.shape(value) != shape:
-            raise InputError(f"{where}{what}[{player!r}] has shape {np.shape(value)}; expected {want}")
+        if arr.shape != shape:
+            raise InputError(f"{where}{what}[{player!r}] has shape {arr.shape}; expected {want}")
 
 
 def check_payoffs(game, theta, starts: np.ndarray) -> None:
-    """Evaluate the payoffs at the starts; raise :class:`InputError` if unusable."""
+    """Evaluate the payoffs at the starts; raise :class:`InputError` if unusable.
+
+    One compiled function per game does it all: the checks of what the payoffs
+    (and ``foc``) return and of their derivatives run while it is traced, the
+    payoff values come out of it. Evaluating the user's functions op by op
+    instead would compile every operation separately.
+    """
     where = _where(game)
-    first = game.split(jax.numpy.asarray(starts[0]))
-    with user_code(game, "payoffs", any_error=True):
-        out = game.payoffs(first, theta)
-    _check_structure(game, out, "payoffs", [()] * len(game.players))
-    if game.foc is not None:
-        with user_code(game, "foc", any_error=True):
-            foc_out = game.foc(first, theta)
-        _check_structure(game, foc_out, "foc", [(m,) for m in game.sizes])
-    batch = game.cached("payoff_batch", lambda: jax.jit(jax.vmap(game.payoff_vector, (0, None))))
+    probe = game.cached("payoff_probe", lambda: jax.jit(lambda xs, th: _probe(game, xs, th)))
     with user_code(game, "payoffs"):
-        values = np.asarray(batch(starts, theta))
-        # Differentiability shows only when the gradient is traced (once per game).
-        game.cached("traced_ok", lambda: _trace_derivatives(game, starts[0], theta))
+        values = np.asarray(probe(jax.numpy.asarray(starts), theta))
     bad = ~np.isfinite(values)
     if bad.any():
         s, i = np.argwhere(bad)[0]
@@ -129,8 +126,19 @@ def check_payoffs(game, theta, starts: np.ndarray) -> None:
         )
 
 
-def _trace_derivatives(game, x, theta) -> bool:
-    jax.eval_shape(game.jacobian, jax.numpy.asarray(x), theta)
+def _probe(game, xs, theta):
+    """Payoffs at each start ``xs[s]``, shape ``(S, N)``; checks the user's functions while traced."""
+    first = game.split(xs[0])
+    with user_code(game, "payoffs", any_error=True):
+        out = game.payoffs(first, theta)
+    _check_structure(game, out, "payoffs", [()] * len(game.players))
     if game.foc is not None:
-        jax.eval_shape(game.solver_field, jax.numpy.asarray(x), theta)
-    return True
+        with user_code(game, "foc", any_error=True):
+            foc_out = game.foc(first, theta)
+        _check_structure(game, foc_out, "foc", [(m,) for m in game.sizes])
+    with user_code(game, "payoffs"):
+        # Differentiability shows only when the derivatives are traced.
+        jax.eval_shape(game.jacobian, xs[0], theta)
+        if game.foc is not None:
+            jax.eval_shape(game.solver_field, xs[0], theta)
+    return jax.vmap(game.payoff_vector, (0, None))(xs, theta)

@@ -7,11 +7,14 @@ import os
 
 def use_compile_cache() -> None:
     """Keep compiled solvers between runs in ``EQUIPOISE_CACHE`` (default ``~/.cache/equipoise/jax``;
-    ``off`` disables)."""
+    ``off`` disables), and traced ones in its ``traces`` folder (:mod:`equipoise._trace_cache`)."""
     where = os.environ.get("EQUIPOISE_CACHE", os.path.join(os.path.expanduser("~"), ".cache", "equipoise", "jax"))
     if where.lower() in ("", "0", "off", "none"):
         return
     import jax
 
+    from . import _trace_cache
+
     jax.config.update("jax_compilation_cache_dir", where)
     jax.config.update("jax_persistent_cache_min_compile_time_secs", 0.0)
+    _trace_cache.DIRECTORY = os.path.join(where, "traces")

@@ -14,6 +14,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from . import _trace_cache
 from ._errors import InputError
 
 Params = dict[str, jax.Array]
@@ -284,6 +285,13 @@ class Game:
         Finite bounds are used where given; otherwise the search box, then the
         default described in :class:`Game`. Works on traced ``theta``.
         """
+        if not any(isinstance(v, jax.core.Tracer) for v in jax.tree.leaves(theta)):
+            # Compiled once rather than run op by op: every eager operation is a
+            # compilation of its own, and a compiled function is kept between runs.
+            return self.cached("region", lambda: jax.jit(self._region))(theta)
+        return self._region(theta)
+
+    def _region(self, theta) -> tuple[jax.Array, jax.Array]:
         lo_b = jnp.asarray(self.lower)
         hi_b = jnp.asarray(self.upper)
         if self._search_box is None:
@@ -323,9 +331,15 @@ class Game:
         return jnp.concatenate(lo), jnp.concatenate(hi)
 
     def cached(self, key, build: Callable[[], Any]):
-        """Memoise a compiled function on this game (one compile per game)."""
+        """Memoise a compiled function on this game (one compile per game).
+
+        For a game loaded from a model file, jitted functions are also kept
+        between runs when the command line's cache is on (see
+        :mod:`equipoise._trace_cache`); ``key`` then names the function and
+        its options.
+        """
         if key not in self._cache:
-            self._cache[key] = build()
+            self._cache[key] = _trace_cache.persistent(self, key, build())
         return self._cache[key]
 
     def __repr__(self) -> str:

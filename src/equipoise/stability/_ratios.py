@@ -12,7 +12,6 @@ roots, so testing one ratio inside each interval gives the exact stable set.
 from __future__ import annotations
 
 import numpy as np
-import scipy.linalg
 
 from ._spectral import ZERO_TOL
 
@@ -33,6 +32,8 @@ def critical_ratios(J: np.ndarray, m1: int) -> np.ndarray:
     J1[m1:] = 0.0
     J2 = J - J1
     A, B = _kron_sum(J1), _kron_sum(J2)
+    import scipy.linalg  # here, not at module level: scipy is slow to import and only two players need it
+
     with np.errstate(all="ignore"):
         w = scipy.linalg.eigvals(A, -B)
     w = w[np.isfinite(w)]

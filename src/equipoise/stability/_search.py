@@ -17,7 +17,6 @@ import functools
 import jax
 import jax.numpy as jnp
 import numpy as np
-import optax
 
 
 def _expand(blocks) -> np.ndarray:
@@ -28,6 +27,8 @@ def _expand(blocks) -> np.ndarray:
 
 def _minimise(objective, x0s, steps: int, rate: float):
     """Adam from each start in ``x0s`` (vmapped); the best value seen and where."""
+    import optax  # here, not at module level: only a search needs it
+
     opt = optax.adam(rate)
 
     def run(x):
