@@ -23,8 +23,10 @@ from ._fixed_point import fixed_point_solve
 from ._newton import deflated_solve, newton_solve
 from ._sampling import unit_sample
 from ._status import Nash, Status
+from ._trace_cache import compile_ahead
 from ._verify import verify
 from .stability import StabilityReport, classify_free
+from .stability._classify import compile_ahead as stability_ahead
 from .stability._rosen import is_constant, rosen_certificate
 
 
@@ -268,6 +270,15 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     check_payoffs(game, theta, x0)
 
     newton = dict(ftol=ftol, xtol=xtol, max_steps=max_steps)
+    check = game.cached("verify", lambda: jax.jit(lambda x, th, u: verify(game, x, th, unit_starts=u)))
+    unit = jnp.asarray(unit_sample(int(deviation_starts), game.n, int(seed) + 1))
+    payoff_fn = game.cached("payoff", lambda: jax.jit(game.payoff_vector))
+    # With an empty cache, what runs after the solver compiles beside it (on a second core).
+    compile_ahead(check, x0[0], theta, unit)
+    compile_ahead(payoff_fn, x0[0], theta)
+    if stability:
+        compile_ahead(_jacobian_batch(game), x0[:4], theta)
+        stability_ahead(game.n, game.sizes)
     with user_code(game, "payoffs"):
         roots = jax.tree.map(np.asarray, _batch_solver(game, method, newton)(jnp.asarray(x0), theta))
         fallback = 0
@@ -291,9 +302,6 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
                                                dedup_tol, dict(ftol=ftol, xtol=xtol, max_steps=max_steps))
         points, residuals = np.concatenate([points, extra]), np.concatenate([residuals, extra_res])
 
-    check = game.cached("verify", lambda: jax.jit(lambda x, th, u: verify(game, x, th, unit_starts=u)))
-    unit = jnp.asarray(unit_sample(int(deviation_starts), game.n, int(seed) + 1))
-    payoff_fn = game.cached("payoff", lambda: jax.jit(game.payoff_vector))
     equilibria = []
     for x, count in distinct(points, residuals, dedup_tol):
         v = jax.tree.map(np.asarray, check(jnp.asarray(x), theta, unit))
@@ -331,9 +339,12 @@ def solve(game, params: Mapping[str, Any] | None = None, *, starts: int = 64, se
     return Solution(equilibria, status, {k: np.asarray(v) for k, v in theta.items()}, stats, rosen)
 
 
+def _jacobian_batch(game):
+    return game.cached("jacobian_batch", lambda: jax.jit(jax.vmap(game.jacobian, (0, None))))
+
+
 def _rosen(game, theta, x0: np.ndarray) -> dict[str, Any]:
-    jac = game.cached("jacobian_batch", lambda: jax.jit(jax.vmap(game.jacobian, (0, None))))
-    Js = np.asarray(jac(jnp.asarray(x0[:4]), theta))
+    Js = np.asarray(_jacobian_batch(game)(jnp.asarray(x0[:4]), theta))
     if not (np.all(np.isfinite(Js)) and is_constant(Js)):
         return {"quadratic": False}
     cert = rosen_certificate(Js[0], game.sizes)

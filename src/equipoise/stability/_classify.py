@@ -18,6 +18,7 @@ import numpy as np
 
 from . import _minors, _search, _spectral
 from ._evidence import Evidence, Pending, compute
+from ._evidence import compile_ahead as compile_evidence_ahead
 from ._ratios import probe_ratio, stable_ratio_intervals
 
 #: A destabilising certificate must push the scaled abscissa above this.
@@ -332,12 +333,7 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
     units = np.where(units > 0, units, 1.0)
     Js = Js / units[:, None, None]
     stores: list[dict] = [{} for _ in range(Js.shape[0])]
-    upfront = [("equal", ()), ("learning_rate", ()), ("best_response", blocks), ("lyapunov_candidates", (1,) * n)]
-    if n <= _minors.MAX_ENUMERATION:
-        upfront.append(("minors", ()))
-    if n in (2, 3):
-        upfront.append(("exact", ()))
-    for kind, b in upfront:
+    for kind, b in _upfront(n, blocks):
         for store, value in zip(stores, compute(kind, b, Js)):
             store[(kind, b)] = value
     results: list[StabilityReport | None] = [None] * Js.shape[0]
@@ -358,6 +354,22 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
                 stores[i][(kind, b)] = value
         waiting = still
     return results
+
+
+def _upfront(n: int, blocks: tuple[int, ...]) -> list[tuple[str, tuple[int, ...]]]:
+    """The evidence every decision starts from."""
+    upfront = [("equal", ()), ("learning_rate", ()), ("best_response", blocks), ("lyapunov_candidates", (1,) * n)]
+    if n <= _minors.MAX_ENUMERATION:
+        upfront.append(("minors", ()))
+    if n in (2, 3):
+        upfront.append(("exact", ()))
+    return upfront
+
+
+def compile_ahead(n: int, blocks) -> None:
+    """Start compiling the upfront evidence for one ``n`` x ``n`` matrix beside the caller."""
+    for kind, b in _upfront(n, tuple(int(k) for k in blocks)):
+        compile_evidence_ahead(kind, b, n)
 
 
 def _decide(J: np.ndarray, blocks, ev: Evidence, unit: float) -> StabilityReport:

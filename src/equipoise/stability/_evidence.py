@@ -16,6 +16,7 @@ import jax
 import jax.numpy as jnp
 import numpy as np
 
+from .. import _trace_cache
 from . import _exact, _lmi, _minors, _search, _spectral
 
 
@@ -52,7 +53,12 @@ KINDS = {
 
 @functools.lru_cache(maxsize=None)
 def _batched(kind: str, blocks: tuple[int, ...]):
-    return jax.jit(jax.vmap(lambda J: KINDS[kind](J, blocks)))
+    return _trace_cache.kept(("evidence", kind, blocks), jax.jit(jax.vmap(lambda J: KINDS[kind](J, blocks))))
+
+
+def compile_ahead(kind: str, blocks: tuple[int, ...], n: int) -> None:
+    """Start compiling evidence ``kind`` for a stack of one ``n`` x ``n`` matrix beside the caller."""
+    _trace_cache.compile_ahead(_batched(kind, blocks), np.zeros((1, n, n)))
 
 
 def _to_numpy(value):

@@ -13,11 +13,13 @@ concave n-person games", Econometrica 33.
 
 from __future__ import annotations
 
+import functools
 from typing import Any
 
 import jax
 import numpy as np
 
+from .. import _trace_cache
 from . import _lmi
 
 #: Jacobians that differ by less than this (relative) count as constant.
@@ -33,11 +35,17 @@ def is_constant(jacobians: np.ndarray) -> bool:
     return bool(np.max(np.abs(J - J[0])) <= CONSTANT_TOL * scale)
 
 
+@functools.lru_cache(maxsize=None)
+def _player_lmi(blocks: tuple[int, ...]):
+    """The barrier method for per-player weights, jitted once per block pattern (its trace kept)."""
+    return _trace_cache.kept(("rosen_lmi", blocks), jax.jit(lambda J: _lmi.lyapunov_lmi(J, blocks, "player")))
+
+
 def rosen_certificate(J, blocks) -> dict[str, Any] | None:
     """Re-verified weights ``r`` (max 1) for Rosen's condition on constant ``J``, or None."""
     J = np.asarray(J, dtype=float)
     blocks = tuple(int(b) for b in blocks)
-    R, _, _ = _lmi.lyapunov_lmi(jax.numpy.asarray(J), blocks, "player")
+    R, _, _ = _player_lmi(tuple(blocks))(jax.numpy.asarray(J))
     edges = np.cumsum((0,) + blocks)[:-1]
     r = np.asarray(R).diagonal()[edges]
     if not (np.all(np.isfinite(r)) and np.all(r > 0)):
