@@ -172,6 +172,17 @@ def _positive(name: str, value, whole: bool = False):
     return value
 
 
+def _step_options(kind: str, dt, lr) -> None:
+    """``dt`` and ``lr`` checked, and refused where the rule has no use for them (not ignored)."""
+    _positive("dt", dt), _positive("lr", lr)
+    if dt is not None and kind != "flow":
+        raise InputError(f"dt: only the flow rule takes a time step; the rule here is {kind} "
+                         f"({'give lr instead' if kind in _rules.OPTAX else 'best responses take no step size'})")
+    if lr is not None and kind not in _rules.OPTAX:
+        raise InputError(f"lr: only the optimiser rules ({', '.join(_rules.OPTAX)}) take a learning rate; the rule "
+                         f"here is {kind}" + (" (give dt for its time step)" if kind == "flow" else ""))
+
+
 def _start_vector(game, start) -> np.ndarray:
     if isinstance(start, Mapping):
         try:
@@ -184,7 +195,12 @@ def _start_vector(game, start) -> np.ndarray:
         raise InputError(f"start: expected {game.n} numbers, got {start!r}") from None
     if x.size != game.n or not np.all(np.isfinite(x)):
         raise InputError(f"start: expected {game.n} finite numbers (stacked actions), got {x.tolist()}")
-    return np.clip(x, game.lower, game.upper)
+    outside = np.nonzero((x < game.lower) | (x > game.upper))[0]
+    if outside.size:
+        k = int(outside[0])
+        raise InputError(f"start: {game.coordinate_name(k)} = {x[k]:g} lies outside its bounds "
+                         f"[{game.lower[k]:g}, {game.upper[k]:g}]; expected a start inside them")
+    return x
 
 
 def _known(game, params, equilibria, seed) -> list[np.ndarray]:
@@ -365,7 +381,7 @@ def simulate(game, params: Mapping[str, Any] | None = None, *, rule="flow", spee
     if steps * game.n > MAX_RECORDED:
         raise InputError(f"steps: {steps} steps of {game.n} actions exceed the {MAX_RECORDED} numbers a run "
                          "records; expected fewer steps")
-    _positive("dt", dt), _positive("lr", lr)
+    _step_options(kind, dt, lr)
     if isinstance(perturb, bool) or not isinstance(perturb, (int, float)) or not np.isfinite(perturb) or perturb < 0:
         raise InputError(f"perturb: expected a non-negative number, got {perturb!r}")
     theta = game.theta(params)
@@ -419,7 +435,7 @@ def basins(game, params: Mapping[str, Any] | None = None, *, rule="flow", speeds
     kind = next(iter(rules.values()))
     starts = _positive("starts", starts, whole=True)
     steps = _positive("steps", steps, whole=True)
-    _positive("dt", dt), _positive("lr", lr)
+    _step_options(kind, dt, lr)
     theta = game.theta(params)
     K = _speeds(game, speeds)
     known = _known(game, params, equilibria, seed)
