@@ -312,6 +312,13 @@ def classify(J, blocks=None) -> StabilityReport:
     return classify_batch(J[None], blocks)[0]
 
 
+def unit_scaled(Js: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each matrix of the stack divided by its largest entry (1 for a zero matrix), and those units."""
+    units = np.max(np.abs(Js), axis=(1, 2))
+    units = np.where(units > 0, units, 1.0)
+    return Js / units[:, None, None], units
+
+
 def classify_batch(Js, blocks=None) -> list[StabilityReport]:
     """:func:`classify` for a stack ``Js`` of shape ``(B, n, n)`` sharing ``blocks``.
 
@@ -329,9 +336,7 @@ def classify_batch(Js, blocks=None) -> list[StabilityReport]:
         raise ValueError("expected finite Jacobian entries")
     # Verdicts are unit-free: work at unit largest entry, report abscissae and step sizes in the
     # original units. This keeps eigenvalue routines away from overflow and underflow.
-    units = np.max(np.abs(Js), axis=(1, 2))
-    units = np.where(units > 0, units, 1.0)
-    Js = Js / units[:, None, None]
+    Js, units = unit_scaled(Js)
     stores: list[dict] = [{} for _ in range(Js.shape[0])]
     for kind, b in _upfront(n, blocks):
         for store, value in zip(stores, compute(kind, b, Js)):

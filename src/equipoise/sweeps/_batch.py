@@ -33,6 +33,7 @@ from .._solve import distinct, run_deflation
 from .._status import Nash, PointStatus, Status
 from .._verify import verify
 from ..stability import classify_batch
+from ..stability._classify import unit_scaled
 from ..stability._evidence import compute
 from ..stability._spectral import VERDICTS
 
@@ -212,9 +213,8 @@ def equal_labels(Js: np.ndarray) -> list[tuple[str, float | None]]:
     """Equal-speed verdict and spectral abscissa of each matrix, as :func:`equipoise.stability.classify` gives them."""
     if Js.shape[1] == 0:
         return [("stable", None)] * Js.shape[0]
-    units = np.max(np.abs(Js), axis=(1, 2))
-    units = np.where(units > 0, units, 1.0)
-    res = compute("equal", (), Js / units[:, None, None])
+    scaled, units = unit_scaled(Js)
+    res = compute("equal", (), scaled)
     return [(VERDICTS[int(code)], float(a) * u) for (code, a), u in zip(res, units)]
 
 
