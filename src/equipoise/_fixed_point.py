@@ -65,7 +65,7 @@ def fixed_point_solve(game, x0, theta=None, *, tol=1e-13, max_steps=5000) -> Roo
     >>> game = equipoise.logit_bertrand(delta=[1.0, 1.0], alpha=1.0, costs=[1.0, 1.0])
     >>> res = equipoise.fixed_point_solve(game, jnp.array([2.0, 2.0]))
     >>> round(float(res.x[0]), 6)
-    2.463512
+    2.226751
     """
     if game.fixed_point is None:
         raise InputError(f"{game.name or 'this game'}: has no fixed-point map; use newton_solve "
