@@ -32,20 +32,9 @@ _LAZY = {
                      "proportional_allocation", "public_good", "tullock"), ".families"),
 }
 
+from ._lazy import lazy_names as _lazy_names  # noqa: E402
 
-def __getattr__(name):
-    module = _LAZY.get(name)
-    if module is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    import importlib
-
-    value = getattr(importlib.import_module(module, __name__), name)
-    globals()[name] = value  # later look-ups skip this function
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_LAZY))
+__getattr__, __dir__ = _lazy_names(__name__, globals(), _LAZY)
 
 
 __version__ = "0.1.0"
